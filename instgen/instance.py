@@ -20,6 +20,8 @@ import numpy as np
 
 from .errors import InputError
 
+_KEEP = object()
+
 #: Rows of states scored per block in :meth:`Instance.energies` (bounds memory).
 _ENERGY_BLOCK = 2048
 
@@ -155,12 +157,15 @@ class Instance:
         """A copy with some attributes changed (validated again)."""
         return dataclasses.replace(self, **changes)
 
-    def with_couplings(self, J, h=None, planted="keep", **metadata) -> Instance:
-        """Same graph and labels, new couplings (and fields); metadata updated."""
+    def with_couplings(self, J, h=None, planted=_KEEP, **metadata) -> Instance:
+        """Same graph and labels, new couplings (and fields); metadata updated.
+
+        ``planted`` keeps the current planted state unless given (None drops it).
+        """
         meta = {**self.metadata, **metadata}
         return Instance(
             edges=self.edges, J=J, h=self.h if h is None else h, n=self.n, labels=self.labels,
-            graph=self.graph, planted=self.planted if planted == "keep" else planted, metadata=meta,
+            graph=self.graph, planted=self.planted if planted is _KEEP else planted, metadata=meta,
         )
 
     @cached_property

@@ -61,6 +61,8 @@ def derive_seed(seed: int, *keys) -> int:
         seed = int(seed.generate_state(1)[0])
     if seed is None:
         seed = int(np.random.SeedSequence().generate_state(1)[0])
+    if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0:
+        raise InputError(f"seed must be a non-negative integer, got {seed!r}")
     entropy = [_key_int(seed)] + [_key_int(k) for k in keys]
     state = np.random.SeedSequence(entropy).generate_state(1, dtype=np.uint32)[0]
     return int(state) % SEED_LIMIT

@@ -13,7 +13,7 @@ def print_json(obj) -> None:
 
 
 def add_seed(parser, default=None):
-    parser.add_argument("--seed", type=int, default=default, metavar="S",
+    parser.add_argument("--seed", type=nonneg_int, default=default, metavar="S",
                         help="random seed (same seed, same result)")
 
 
