@@ -8,7 +8,10 @@ from instgen.cli import main
 
 
 def run(argv, capsys):
-    code = main(argv)
+    try:
+        code = main(argv)
+    except SystemExit as exc:  # argparse's own refusals
+        code = exc.code
     out = capsys.readouterr()
     return code, out.out, out.err
 
