@@ -1,0 +1,309 @@
+"""Fitness for breeding: what "hard" means for a run.
+
+A fitness turns surrogate samples of one candidate into one number, **higher
+meaning harder**.  Three ways to say what you want, in order of preference:
+
+1. a named metric (``tts``, ``gap``, ``residual``, ``success``): measured with
+   explicit schedules, pooled honestly across repeated measurements, and
+   understood by the report;
+2. ``composite`` with ``weights = {tts = 1.0, gap = 0.5}``: a weighted sum of
+   the named metrics' fitness values;
+3. your own function ``package.module:function(instance, context) -> float``
+   (or ``instgen.breed(config, fitness=callable)`` from Python).  It runs only
+   because you named it; instgen cannot pool or interpret it beyond averaging,
+   so prefer a named metric when one fits.
+
+Each measurement keeps the raw final energies per sweep count, so repeated
+measurements of the same candidate pool by concatenation and the value is
+recomputed from everything seen (see :func:`pool`).
+
+Named metric values (what the number means):
+
+``tts``       log10 of time-to-solution TTS99 in sweeps at the best sweep count
+              of the grid; a candidate whose ground state was never reached is
+              scored as if one read had succeeded (a lower bound, flagged).
+``gap``       (mean E after ``short_sweeps`` - mean E after ``long_sweeps``) / (n * scale):
+              how much an instance still improves late in an anneal.
+``residual``  (mean E after ``long_sweeps`` - reference) / (n * scale).
+``success``   1 - success probability after ``long_sweeps``.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import importlib
+import math
+from typing import Any
+
+import numpy as np
+
+from .errors import ConfigError, InputError
+from .instance import Instance
+from .metrics import tts
+from .samplers import SAMPLERS, Schedule, get_sampler
+from .seeds import derive_seed
+
+#: Energies within this of the reference count as reaching it.
+ENERGY_TOLERANCE = 1e-6
+
+METRIC_NAMES = ("tts", "gap", "residual", "success")
+
+
+@dataclasses.dataclass
+class Context:
+    """Everything a worker needs besides the candidate's couplings (sent once)."""
+
+    n: int
+    edges: np.ndarray
+    labels: tuple | None
+    graph: str
+    rules: dict
+    metric: str
+    weights: dict | None
+    sampler: str
+    sweeps: tuple[int, ...]
+    short_sweeps: int
+    long_sweeps: int
+    beta_range: tuple[float, float]
+    interpolation: str
+    scale: float
+    noise_sigma: float = 0.0
+    noise_copies: int = 0
+    user: Any = None  # a callable, when the metric is a user function
+
+    @classmethod
+    def from_config(cls, cfg: dict, topology, user=None) -> Context:
+        from .couplings import CouplingRules
+        from .samplers import default_beta_range
+
+        f = cfg["fitness"]
+        c = cfg["couplings"]
+        rules = CouplingRules.make(c["alphabet"], c["fields"], c["range"], c["field_range"], c["precision"])
+        beta = tuple(f["beta_range"]) if f["beta_range"] else default_beta_range(rules.scale)
+        metric = f["metric"]
+        if user is None and ":" in metric:
+            user = load_user_function(metric)
+        return cls(
+            n=topology.n, edges=topology.edges, labels=topology.labels, graph=topology.spec,
+            rules=rules.to_dict(), metric=metric, weights=f["weights"], sampler=f["sampler"],
+            sweeps=tuple(sorted(set(f["sweeps"]))), short_sweeps=f["short_sweeps"], long_sweeps=f["long_sweeps"],
+            beta_range=beta, interpolation=f["interpolation"], scale=rules.scale,
+            noise_sigma=float(f["noise_sigma"]), noise_copies=int(f["noise_copies"]), user=user,
+        )
+
+    def schedule(self, sweeps: int) -> Schedule:
+        return Schedule(sweeps=int(sweeps), beta_range=self.beta_range, interpolation=self.interpolation)
+
+    def sweep_counts(self) -> tuple[int, ...]:
+        """The sweep counts the metric needs."""
+        names = self.weights if self.metric == "composite" else {self.metric: 1}
+        need = set()
+        for name in names:
+            if name == "tts":
+                need |= set(self.sweeps)
+            elif name == "gap":
+                need |= {self.short_sweeps, self.long_sweeps}
+            elif name in ("residual", "success"):
+                need.add(self.long_sweeps)
+        return tuple(sorted(need))
+
+    def instance(self, J, h, planted=None) -> Instance:
+        return Instance(edges=self.edges, J=J, h=h, n=self.n, labels=self.labels, graph=self.graph,
+                        planted=planted, metadata={"rules": self.rules})
+
+
+@dataclasses.dataclass
+class Measurement:
+    """Raw results of measuring one candidate once (or pooled over several)."""
+
+    energies: dict[int, np.ndarray] = dataclasses.field(default_factory=dict)
+    values: list[float] = dataclasses.field(default_factory=list)
+    seconds: float = 0.0
+    spin_updates: int = 0
+
+    def to_dict(self) -> dict:
+        return {"energies": {str(k): v.tolist() for k, v in self.energies.items()}, "values": list(self.values),
+                "seconds": self.seconds, "spin_updates": self.spin_updates}
+
+    @classmethod
+    def from_dict(cls, d: dict) -> Measurement:
+        return cls({int(k): np.asarray(v, dtype=np.float64) for k, v in d["energies"].items()},
+                   [float(x) for x in d["values"]], float(d["seconds"]), int(d["spin_updates"]))
+
+    @property
+    def min_energy(self) -> float:
+        return min((float(e.min()) for e in self.energies.values() if e.size), default=math.inf)
+
+
+def pool(measurements) -> Measurement:
+    """Concatenate measurements of the same candidate."""
+    out = Measurement()
+    for m in measurements:
+        for k, e in m.energies.items():
+            out.energies[k] = np.concatenate([out.energies[k], e]) if k in out.energies else e
+        out.values.extend(m.values)
+        out.seconds += m.seconds
+        out.spin_updates += m.spin_updates
+    return out
+
+
+# --------------------------------------------------------------------- measuring
+def measure(ctx: Context, J, h, seed: int, reads: int, planted=None) -> Measurement:
+    """Run the context's sampler on one candidate at every sweep count the metric needs.
+
+    With ``noise_copies`` > 0, each read is split across perturbed copies of the
+    couplings (Gaussian noise ``noise_sigma`` times the scale on J and h, seeded), and
+    the states found are scored on the unperturbed instance: hardness that
+    survives control errors.
+    """
+    inst = ctx.instance(J, h, planted)
+    if ctx.user is not None:
+        value = float(ctx.user(inst, UserContext(ctx, seed, reads)))
+        if not math.isfinite(value):
+            raise InputError(f"the fitness function returned {value}, not a finite number")
+        return Measurement(values=[value])
+    sampler = get_sampler(ctx.sampler)
+    out = Measurement()
+    copies = max(1, ctx.noise_copies) if ctx.noise_sigma > 0 else 1
+    for sweeps in ctx.sweep_counts():
+        parts = []
+        for c in range(copies):
+            target = inst
+            if ctx.noise_sigma > 0:
+                rng = np.random.default_rng(derive_seed(seed, "noise", c))
+                sd = ctx.noise_sigma * ctx.scale
+                target = inst.with_couplings(inst.J + rng.normal(0, sd, inst.m), inst.h + rng.normal(0, sd, inst.n))
+            r = max(1, reads // copies)
+            batch = sampler.run(target, ctx.schedule(sweeps), reads=r, seed=derive_seed(seed, "sweeps", sweeps, c))
+            parts.append(inst.energies(batch.states) if target is not inst else batch.energies)
+            out.seconds += batch.seconds
+            out.spin_updates += batch.spin_updates
+        out.energies[sweeps] = np.concatenate(parts)
+    return out
+
+
+class UserContext:
+    """What a user fitness function receives besides the instance.
+
+    ``seed`` and ``reads`` are this evaluation's; ``run(sweeps, sampler=None,
+    reads=None)`` anneals the instance with the run's explicit schedule and
+    returns a :class:`~instgen.records.SampleBatch`.
+    """
+
+    def __init__(self, ctx: Context, seed: int, reads: int):
+        self._ctx = ctx
+        self.seed = seed
+        self.reads = reads
+        self.sweeps = ctx.sweeps
+        self.scale = ctx.scale
+
+    def run(self, instance, sweeps: int, sampler: str | None = None, reads: int | None = None):
+        s = get_sampler(sampler or self._ctx.sampler)
+        return s.run(instance, self._ctx.schedule(sweeps), reads=reads or self.reads,
+                     seed=derive_seed(self.seed, "user", sweeps))
+
+
+# ---------------------------------------------------------------------- values
+def tts_from_energies(energies: dict[int, np.ndarray], reference: float) -> dict:
+    """Optimal-sweeps TTS99 over the grid, with the zero-success rule of the module docstring."""
+    rows = []
+    for sweeps in sorted(energies):
+        e = energies[sweeps]
+        hits = int(np.sum(e <= reference + ENERGY_TOLERANCE))
+        reads = int(e.size)
+        p = hits / reads if reads else 0.0
+        bounded = hits == 0
+        p_used = (1.0 / (reads + 1)) if bounded else p
+        rows.append({"sweeps": sweeps, "hits": hits, "reads": reads, "p": p, "tts": tts(p_used, sweeps),
+                     "bound": bounded})
+    best = min(rows, key=lambda r: r["tts"])
+    return {"tts": best["tts"], "sweeps": best["sweeps"], "bound": best["bound"],
+            "at_edge": len(rows) > 1 and best["sweeps"] in (rows[0]["sweeps"], rows[-1]["sweeps"]), "grid": rows}
+
+
+def metric_value(name: str, ctx: Context, m: Measurement, reference: float) -> tuple[float, dict]:
+    """Fitness value (higher = harder) of one named metric, with details."""
+    norm = max(ctx.n * ctx.scale, 1e-300)
+    if name == "tts":
+        d = tts_from_energies({k: m.energies[k] for k in ctx.sweeps}, reference)
+        return math.log10(d["tts"]), d
+    if name == "gap":
+        short, long = m.energies[ctx.short_sweeps], m.energies[ctx.long_sweeps]
+        gap = (float(short.mean()) - float(long.mean())) / norm
+        return gap, {"gap": gap, "short_mean": float(short.mean()), "long_mean": float(long.mean())}
+    e = m.energies[ctx.long_sweeps]
+    if name == "residual":
+        r = (float(e.mean()) - reference) / norm
+        return r, {"residual": r}
+    if name == "success":
+        p = float(np.mean(e <= reference + ENERGY_TOLERANCE))
+        return 1.0 - p, {"p": p}
+    raise InputError(f"unknown metric {name!r}")
+
+
+def value(ctx: Context, m: Measurement, reference: float | None) -> tuple[float, dict]:
+    """The fitness of a (pooled) measurement against ``reference``.
+
+    ``reference`` None means "best found": the lowest energy in the measurement
+    (not a proven optimum).
+    """
+    if ctx.user is not None:
+        return float(np.mean(m.values)), {"values": len(m.values)}
+    ref = m.min_energy if reference is None else reference
+    if ctx.metric == "composite":
+        total, details = 0.0, {}
+        for name, w in ctx.weights.items():
+            v, d = metric_value(name, ctx, m, ref)
+            total += w * v
+            details[name] = {"value": v, **d}
+        return total, {"reference": ref, "parts": details}
+    v, d = metric_value(ctx.metric, ctx, m, ref)
+    return v, {"reference": ref, **d}
+
+
+def display(ctx: Context, v: float) -> str:
+    """A fitness value as a reader would say it."""
+    if ctx.metric == "tts":
+        return f"TTS99 {10 ** v:.3g} sweeps"
+    return f"{ctx.metric} {v:.4g}"
+
+
+# ------------------------------------------------------------------ user functions
+def load_user_function(spec: str):
+    """Import ``package.module:function``; only ever called when a user names it."""
+    module, _, attr = spec.partition(":")
+    if not module or not attr:
+        raise ConfigError(f"a fitness function is named as package.module:function, got {spec!r}")
+    try:
+        fn = getattr(importlib.import_module(module), attr)
+    except ImportError as exc:
+        raise ConfigError(f"cannot import fitness module {module!r}: {exc}") from None
+    except AttributeError:
+        raise ConfigError(f"module {module!r} has no function {attr!r}") from None
+    if not callable(fn):
+        raise ConfigError(f"{spec} is not a function")
+    return fn
+
+
+def check_fitness(f: dict) -> None:
+    """Validate the [fitness] table's metric, weights and samplers."""
+    metric = f["metric"]
+    if metric == "composite":
+        w = f["weights"]
+        if not w or not isinstance(w, dict):
+            raise ConfigError("[fitness] metric 'composite' needs weights, e.g. weights = { tts = 1.0, gap = 0.5 }")
+        for name, weight in w.items():
+            if name not in METRIC_NAMES:
+                raise ConfigError(f"[fitness] weights: unknown metric {name!r}; choose from: {', '.join(METRIC_NAMES)}")
+            if isinstance(weight, bool) or not isinstance(weight, (int, float)) or not math.isfinite(weight):
+                raise ConfigError(f"[fitness] weights.{name} must be a finite number")
+    elif ":" in metric:
+        module, _, attr = metric.partition(":")
+        if not module or not attr or not all(p.isidentifier() for p in module.split(".") + [attr]):
+            raise ConfigError(f"[fitness] metric {metric!r} is not of the form package.module:function")
+    elif metric not in METRIC_NAMES:
+        raise ConfigError(f"[fitness] unknown metric {metric!r}; choose one of: {', '.join(METRIC_NAMES)}, "
+                          "composite, or package.module:function")
+    if f["sampler"] not in SAMPLERS:
+        raise ConfigError(f"[fitness] unknown sampler {f['sampler']!r}; choose one of: {', '.join(SAMPLERS.names())}")
+

@@ -1,0 +1,1 @@
+"""What a run shows people: progress, summaries, plots and the HTML report."""
