@@ -73,3 +73,27 @@ class Sampler:
     def _run(self, instance: Instance, schedule: Schedule | None, reads: int, seed: int,
              options: dict) -> np.ndarray | dict:
         raise NotImplementedError
+
+
+def index_bqm(instance: Instance):
+    """A dimod SPIN BQM on the variables 0..n-1 (labels play no part).
+
+    Built straight from the instance's arrays, so it is cheap enough to make
+    once per sampling call.
+
+    >>> from instgen.instance import Instance
+    >>> bqm = index_bqm(Instance(edges=[[0, 1]], J=[1.0], h=[0.5, 0.0]))
+    >>> list(bqm.variables), float(bqm.quadratic[0, 1])
+    ([0, 1], 1.0)
+    """
+    import dimod
+
+    return dimod.BinaryQuadraticModel.from_numpy_vectors(
+        instance.h, (instance.edges[:, 0], instance.edges[:, 1], instance.J), 0.0, dimod.SPIN)
+
+
+def index_states(sampleset, n: int) -> np.ndarray:
+    """The samples of a dimod SampleSet over variables 0..n-1 as (R, n) int8, columns in index order."""
+    out = np.empty((len(sampleset), n), dtype=np.int8)
+    out[:, np.asarray(list(sampleset.variables), dtype=np.int64)] = sampleset.record.sample
+    return out
