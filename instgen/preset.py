@@ -144,7 +144,8 @@ def _check_value(table, key, value):
     if value is None:
         return None
     if isinstance(value, bool) or not isinstance(value, types):
-        names = types.__name__ if isinstance(types, type) else " or ".join(t.__name__ for t in types)
+        words = {int: "whole number", float: "number", str: "string", list: "list", dict: "table"}
+        names = words[types] if isinstance(types, type) else "number"
         raise ConfigError(f"{where} must be a {names}, got {value!r}")
     if isinstance(value, float) and not math.isfinite(value) and key != "target":
         raise ConfigError(f"{where} must be a finite number, got {value!r}")

@@ -68,9 +68,9 @@ class Individual:
                 "measurement": None if self.measurement is None else self.measurement.to_dict()}
 
     @classmethod
-    def from_dict(cls, d: dict) -> Individual:
+    def from_dict(cls, d: dict, var=None) -> Individual:
         m = d.get("measurement")
-        return cls(genome_from_dict(d["genome"]), d["key"], d["canon"], d["born"], d["parents"],
+        return cls(genome_from_dict(d["genome"], var), d["key"], d["canon"], d["born"], d["parents"],
                    None if m is None else Measurement.from_dict(m), d["fitness"], d["details"], d["measured"])
 
 
@@ -93,8 +93,8 @@ class Famous:
                 "details": self.details}
 
     @classmethod
-    def from_dict(cls, d: dict) -> Famous:
-        return cls(genome_from_dict(d["genome"]), d["key"], d["canon"], d["generation"], d["parents"],
+    def from_dict(cls, d: dict, var=None) -> Famous:
+        return cls(genome_from_dict(d["genome"], var), d["key"], d["canon"], d["generation"], d["parents"],
                    d["search_fitness"], d["confirmed"], d["details"])
 
 
@@ -292,8 +292,8 @@ class Breeder:
         self.generation, self.evaluations = doc["generation"], doc["evaluations"]
         self.elapsed, self.best_since = doc["elapsed"], doc["best_since"]
         self.rng.bit_generator.state = doc["rng"]
-        self.population = [Individual.from_dict(d) for d in doc["population"]]
-        self.hall = [Famous.from_dict(d) for d in doc["hall"]]
+        self.population = [Individual.from_dict(d, self.var) for d in doc["population"]]
+        self.hall = [Famous.from_dict(d, self.var) for d in doc["hall"]]
         self.confirmed_keys = set(doc["confirmed_keys"])
         self.history = doc["history"]
 

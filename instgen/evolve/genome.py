@@ -55,13 +55,14 @@ class FreeGenome:
         return cls(np.asarray(d["J"], dtype=np.float64), np.asarray(d["h"], dtype=np.float64))
 
 
-def genome_from_dict(d: dict):
+def genome_from_dict(d: dict, var=None):
+    """Rebuild a genome from its checkpoint dict (``var``: the run's Variation, for loop genomes)."""
     if d.get("kind") == "free":
         return FreeGenome.from_dict(d)
     if d.get("kind") == "loops":
         from .loops import LoopGenome
 
-        return LoopGenome.from_dict(d)
+        return LoopGenome.from_dict(d, var)
     from ..errors import FormatError
 
     raise FormatError(f"unknown genome kind {d.get('kind')!r} in checkpoint")

@@ -184,7 +184,7 @@ class BlockCrossover(Operator):
 def default_operators(genome_kind: str, rules: CouplingRules) -> dict[str, float]:
     """Operator weights used when a preset names none."""
     if genome_kind == "loops":
-        return {"add-loop": 1.0, "remove-loop": 1.0, "reroute-loop": 1.0, "reweight-loop": 0.5}
+        return {"add-loop": 1.0, "remove-loop": 1.0, "reroute-loop": 1.0, "reweight-loop": 0.5, "mix-loops": 0.5}
     ops = {"resample": 1.0, "uniform": 0.5, "block": 0.5}
     if rules.couplings.kind != "pm1":
         ops["sign-flip"] = 0.5
