@@ -32,3 +32,7 @@ class CertificationError(InstgenError):
 
 class LibraryError(InstgenError):
     """The benchmark library is missing, damaged or of a newer schema."""
+
+
+class ClusterError(InstgenError):
+    """A Dask cluster cannot be reached, or was lost during a run."""
