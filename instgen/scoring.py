@@ -1,0 +1,525 @@
+"""Scoring an instance: run surrogate samplers with explicit schedules, then metrics.
+
+The one Python API behind ``instgen score`` and the breeding fitness::
+
+    score = measure(instance, "tts", sampler="sa", sweeps=[10, 100, 1000], reads=256, seed=1)
+
+How a measurement is made:
+
+* **Schedule.**  The beta range comes from the ``beta_range`` argument, else
+  from ``scale``, else from the coupling alphabet stored with the instance
+  (``metadata["rules"]``) through :func:`~instgen.samplers.default_beta_range`;
+  never from the instance's own couplings, or a search would learn to break
+  the schedule instead of the sampler.
+* **Seeds.**  Every (solver, sweep count) run gets
+  ``derive_seed(seed, "measure", solver, sweeps)``, so a run's samples do not
+  depend on which other metrics or solvers were asked for.
+* **Reference energy.**  From the caller (``reference=``), else the
+  instance's certificate (``metadata["certificate"]``), else its planted
+  state, else the lowest energy found across every run of the call, in which
+  case the score's ``reference_status`` is ``"unverified"`` and its notes say
+  so.  A sampler finding an energy below a claimed reference is reported
+  plainly and the lower energy is used.
+
+Metrics are registered in :data:`METRICS` (names shared with presets and the
+command line).  :func:`measure_many` scores several metrics under several
+solvers from one set of runs; :func:`measure_perturbed` scores copies with
+Gaussian control errors on J and h.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from collections.abc import Callable, Sequence
+
+import numpy as np
+
+from . import metrics as M
+from .errors import InputError
+from .instance import Instance
+from .records import SampleBatch, Score
+from .registry import Registry
+from .samplers import SAMPLERS, Schedule, default_beta_range
+from .seeds import as_generator, derive_seed
+
+METRICS = Registry("metric")
+
+
+@dataclasses.dataclass(frozen=True)
+class MetricSpec:
+    """A named metric: which sweep counts it needs and how it is computed.
+
+    ``counts`` is ``"grid"`` (every sweep count given), ``"one"`` (the largest)
+    or ``"pair"`` (the smallest and the largest).  ``harder`` says which
+    direction means a harder instance.
+    """
+
+    name: str
+    summary: str
+    counts: str
+    default_sweeps: tuple[int, ...]
+    harder: str
+    compute: Callable
+    needs_samples: bool = True
+
+
+@dataclasses.dataclass
+class Reference:
+    """The energy measured against, how it is known, and known ground states."""
+
+    energy: float
+    status: str
+    source: str
+    states: np.ndarray | None = None
+    notes: list[str] = dataclasses.field(default_factory=list)
+
+
+@dataclasses.dataclass
+class _Run:
+    """What a metric's compute function sees for one solver."""
+
+    instance: Instance
+    solver: str
+    unit: str
+    counts: tuple[int, ...]
+    batches: dict[int, SampleBatch]
+    reference: Reference
+    scale: float
+    tol: float
+    confidence: float
+    seed: int
+    notes: list[str]
+
+
+# --------------------------------------------------------------------- set-up
+def schedule_range(instance: Instance, beta_range=None, scale=None) -> tuple[tuple[float, float], float | None, str]:
+    """(beta_range, coupling scale, where they came from) for scoring ``instance``.
+
+    >>> from instgen.make import make_instance
+    >>> schedule_range(make_instance("chimera:1", "int:2", seed=1))[:2]
+    ((0.05, 2.5), 2.0)
+    """
+    if scale is not None:
+        if isinstance(scale, bool) or not isinstance(scale, (int, float)) or not math.isfinite(scale) or scale <= 0:
+            raise InputError(f"scale must be a positive number, got {scale!r}")
+        scale, source = float(scale), f"scale {scale:g} given by the caller"
+    else:
+        rules = instance.metadata.get("rules")
+        if rules:
+            from .couplings import CouplingRules
+
+            if not isinstance(rules, dict):
+                raise InputError("the instance's metadata 'rules' is not a table of coupling rules")
+            scale = CouplingRules.from_dict(rules).scale
+            source = f"coupling alphabet {rules.get('couplings')} (scale {scale:g})"
+    if beta_range is not None:
+        try:
+            b = Schedule(sweeps=1, beta_range=tuple(beta_range)).beta_range
+        except (TypeError, ValueError):
+            raise InputError(f"beta_range must be two positive numbers, got {beta_range!r}") from None
+        return b, scale, "beta range given by the caller"
+    if scale is None:
+        raise InputError("the instance carries no coupling alphabet (metadata 'rules'), so there is no default "
+                         "schedule; give a coupling scale (scale=, --scale) or a beta range (beta_range=, --beta-range)")
+    return default_beta_range(scale), scale, source
+
+
+def _claimed_reference(instance: Instance, reference, tol: float) -> Reference | None:
+    if reference is not None:
+        if isinstance(reference, bool) or not isinstance(reference, (int, float)) or not math.isfinite(reference):
+            raise InputError(f"reference must be a finite energy, got {reference!r}")
+        return Reference(float(reference), "unverified", "energy given by the caller",
+                         notes=[f"the reference energy {reference:g} was given by the caller and is not checked "
+                                "by instgen: it is not a proven optimum"])
+    cert = instance.metadata.get("certificate")
+    if cert is not None:
+        energy = cert.get("energy") if isinstance(cert, dict) else None
+        if isinstance(energy, bool) or not isinstance(energy, (int, float)) or not math.isfinite(energy):
+            raise InputError("the instance's metadata 'certificate' has no numeric 'energy'")
+        status = cert.get("status") if cert.get("status") in ("planted", "proven", "unverified") else "unverified"
+        ref = Reference(float(energy), status, f"certificate ({cert.get('method', 'unknown method')}, {status})")
+        state = cert.get("state")
+        if isinstance(state, list) and len(state) == instance.n and all(x in (-1, 1) for x in state):
+            s = np.asarray(state, dtype=np.int8)
+            if abs(instance.energy(s) - energy) <= tol:
+                ref.states = s[None, :]
+        if status == "unverified":
+            ref.notes.append(f"the certificate's energy {energy:g} is marked unverified: it is not a proven optimum")
+        return ref
+    if instance.planted is not None:
+        return Reference(instance.planted_energy, "planted", "planted state", states=instance.planted[None, :])
+    return None
+
+
+def resolve_reference(instance: Instance, lowest: float, reference=None, tol: float = 1e-9) -> Reference:
+    """The reference energy for a measurement whose lowest energy found is ``lowest``."""
+    ref = _claimed_reference(instance, reference, tol)
+    if ref is None:
+        return Reference(lowest, "unverified", "lowest energy found in this measurement", notes=[
+            f"the reference energy {lowest:g} is the lowest any sampler found in this measurement, NOT a proven "
+            "optimum: success and time-to-solution count reads that matched the best of this run, and a lower "
+            "state may exist (plant one or run `instgen certify`)"])
+    if lowest < ref.energy - tol:
+        return Reference(lowest, "unverified", "lowest energy found in this measurement", notes=[
+            f"a sampler found energy {lowest:g}, below the reference {ref.energy:g} from the {ref.source}: that "
+            f"reference is not a ground state; measured against {lowest:g} instead, which is not a proven "
+            "optimum either"])
+    return ref
+
+
+def _counts(spec: MetricSpec, sweeps) -> tuple[int, ...]:
+    if sweeps is None:
+        vals = list(spec.default_sweeps)
+    else:
+        vals = [sweeps] if isinstance(sweeps, (int, np.integer)) and not isinstance(sweeps, bool) else list(sweeps)
+        if not vals or any(isinstance(v, bool) or not isinstance(v, (int, np.integer)) or v < 1 for v in vals):
+            raise InputError(f"sweeps must be positive whole numbers, got {sweeps!r}")
+    vals = sorted({int(v) for v in vals})
+    if spec.counts == "one":
+        return (vals[-1],)
+    if spec.counts == "pair":
+        if len(vals) < 2:
+            raise InputError(f"the {spec.name} metric needs two sweep counts (a short and a long anneal), "
+                             f"got only {vals[0]}")
+        return (vals[0], vals[-1])
+    return tuple(vals)
+
+
+def _recipe(schedule: dict, counts) -> dict:
+    """A batch's schedule without per-sweep arrays (rebuilt from the recipe), with every count used."""
+    d = {k: v for k, v in schedule.items() if not isinstance(v, list) or k == "beta_range"}
+    if "sweeps" in d:
+        d["sweeps"] = list(counts) if len(counts) > 1 else counts[0]
+    return d
+
+
+def _run_all(target: Instance, scorer: Instance, solvers, counts_by_solver, reads, seed, beta_range,
+             schedule, options, keys=()) -> dict:
+    batches = {}
+    for name in solvers:
+        sampler = SAMPLERS.get(name)()
+        for c in counts_by_solver[name]:
+            sched = Schedule.from_dict({**(schedule or {}), "sweeps": c, "beta_range": beta_range})
+            b = sampler.run(target, sched, reads=reads, seed=derive_seed(seed, "measure", name, c, *keys),
+                            **options.get(name, {}))
+            if target is not scorer:
+                b = dataclasses.replace(b, energies=scorer.energies(b.states))
+            batches[name, c] = b
+    return batches
+
+
+def _prepare(instance, metrics, solvers, sweeps, reads, options):
+    if not isinstance(instance, Instance):
+        raise InputError(f"expected an Instance, got {type(instance).__name__}")
+    if isinstance(reads, bool) or not isinstance(reads, (int, np.integer)) or reads < 1:
+        raise InputError(f"reads must be a positive whole number, got {reads!r}")
+    metrics = [metrics] if isinstance(metrics, str) else list(metrics)
+    solvers = [solvers] if isinstance(solvers, str) else list(solvers)
+    if not metrics or not solvers:
+        raise InputError("give at least one metric and one solver")
+    specs = [METRICS.get(m) for m in metrics]
+    options = dict(options or {})
+    for name in solvers:
+        cls = SAMPLERS.get(name)
+        if getattr(cls, "enumerates", False):
+            bad = [s.name for s in specs if s.needs_samples]
+            if bad:
+                raise InputError(f"the {name} sampler lists the lowest states instead of sampling, so "
+                                 f"{', '.join(bad)} would mean nothing under it; use ground-states or deception")
+    unknown = set(options) - set(solvers)
+    if unknown:
+        raise InputError(f"options given for solver(s) not being run: {', '.join(sorted(unknown))}")
+    per_spec = {s.name: _counts(s, sweeps) for s in specs}
+    needed = sorted({c for cs in per_spec.values() for c in cs})
+    return specs, solvers, per_spec, {name: needed for name in solvers}, options
+
+
+def _tolerance(instance: Instance) -> float:
+    return 1e-9 * max(1.0, float(np.abs(instance.J).sum() + np.abs(instance.h).sum()))
+
+
+def _scores(instance, specs, solvers, per_spec, batches, ref, scale, tol, confidence, seed, keys=()):
+    out = []
+    for name in solvers:
+        unit = getattr(SAMPLERS.get(name), "effort_unit", "sweeps")
+        for spec in specs:
+            counts = per_spec[spec.name]
+            run = _Run(instance, name, unit, counts, {c: batches[name, c] for c in counts}, ref, scale, tol,
+                       confidence, derive_seed(seed, "bootstrap", name, spec.name, *keys), list(ref.notes))
+            score = spec.compute(run)
+            first = run.batches[counts[0]]
+            score.solver, score.reads = name, first.reads
+            score.schedule = _recipe(first.schedule, counts)
+            score.seeds = [run.batches[c].seed for c in counts]
+            score.reference, score.reference_status = ref.energy, ref.status
+            score.notes = run.notes + score.notes
+            score.extra = {"seed": seed, "reference_source": ref.source, **score.extra}
+            out.append(score)
+    return out
+
+
+# ------------------------------------------------------------------- public API
+def measure_many(instance: Instance, metrics=("tts",), solvers=("sa",), *, sweeps=None, reads: int = 100,
+                 seed=0, reference=None, beta_range=None, scale=None, schedule: dict | None = None,
+                 options: dict | None = None, confidence: float = 0.95) -> list[Score]:
+    """Several metrics under several solvers, from one set of runs.
+
+    Parameters
+    ----------
+    instance : Instance
+    metrics, solvers : sequence of str
+        Names from :data:`METRICS` and the sampler registry.
+    sweeps : int or sequence of int, optional
+        Sweep counts: a grid metric uses all, a one-count metric the largest,
+        the anneal gap the smallest and largest.  Default: each metric's own.
+    reads : int
+        Reads per (solver, sweep count).
+    seed : int
+    reference : float, optional
+        Energy to measure against (see the module docstring).
+    beta_range : (float, float), optional
+    scale : float, optional
+        Coupling scale, when the instance carries no alphabet.
+    schedule : dict, optional
+        Further :class:`Schedule` fields (``interpolation``, ``shape``, ...).
+    options : dict, optional
+        ``{solver: {option: value}}``.
+    confidence : float
+
+    Returns
+    -------
+    list of Score, solver by solver, metrics in the order given.
+
+    Examples
+    --------
+    >>> from instgen.make import make_instance
+    >>> inst = make_instance("chimera:1", "pm1", seed=2)
+    >>> [s.metric for s in measure_many(inst, ["success", "residual"], ["sa", "tabu"], sweeps=50, reads=10)]
+    ['success', 'residual', 'success', 'residual']
+    """
+    specs, solvers, per_spec, needed, options = _prepare(instance, metrics, solvers, sweeps, reads, options)
+    br, scale, source = schedule_range(instance, beta_range, scale)
+    batches = _run_all(instance, instance, solvers, needed, int(reads), seed, br, schedule, options)
+    tol = _tolerance(instance)
+    ref = resolve_reference(instance, min(b.min_energy for b in batches.values()), reference, tol)
+    out = _scores(instance, specs, solvers, per_spec, batches, ref, scale, tol, confidence, seed)
+    for s in out:
+        s.extra["beta_range_source"] = source
+    return out
+
+
+def measure(instance: Instance, metric: str, *, sampler: str = "sa", sweeps=None, reads: int = 100, seed=0,
+            reference=None, beta_range=None, scale=None, schedule: dict | None = None,
+            confidence: float = 0.95, **sampler_options) -> Score:
+    """One metric of one instance under one sampler (see :func:`measure_many`).
+
+    Cheap enough to call from a breeding loop: no files, no re-validation of
+    the instance, one sampler call per sweep count.
+
+    Examples
+    --------
+    >>> from instgen.make import make_instance
+    >>> inst = make_instance("chimera:2", "pm1", seed=1)
+    >>> s = measure(inst, "tts", sweeps=[10, 100], reads=50, seed=3)
+    >>> s.metric, s.units, s.reference_status
+    ('tts', 'sweeps', 'unverified')
+    """
+    return measure_many(instance, [metric], [sampler], sweeps=sweeps, reads=reads, seed=seed, reference=reference,
+                        beta_range=beta_range, scale=scale, schedule=schedule,
+                        options={sampler: sampler_options} if sampler_options else None, confidence=confidence)[0]
+
+
+COMBINE = {"median": np.median, "mean": np.mean, "min": np.min, "max": np.max}
+
+
+def measure_perturbed(instance: Instance, metric: str, sigma: float, copies: int = 8, seed=0, *,
+                      sampler: str = "sa", sweeps=None, reads: int = 100, combine: str = "median",
+                      reference=None, beta_range=None, scale=None, schedule: dict | None = None,
+                      confidence: float = 0.95, **sampler_options) -> Score:
+    """A metric over ``copies`` copies with Gaussian control errors on J and h.
+
+    Each copy adds independent N(0, (sigma * scale)^2) noise to every coupling
+    and field (``scale`` is the coupling alphabet's), the sampler runs on the
+    copy, and the states it returns are scored on the *original* instance:
+    does the noisy machine still find the intended ground state?  The value
+    is ``combine`` (median, mean, min or max) of the copies' values; ``ci`` is
+    their range (not a confidence interval); ``extra["values"]`` lists them.
+
+    Examples
+    --------
+    >>> from instgen.make import make_instance
+    >>> inst = make_instance("chimera:1", "pm1", seed=2)
+    >>> s = measure_perturbed(inst, "residual", 0.05, copies=3, sweeps=50, reads=10, seed=1)
+    >>> len(s.extra["values"]), s.extra["sigma"]
+    (3, 0.05)
+    """
+    if isinstance(sigma, bool) or not isinstance(sigma, (int, float)) or not math.isfinite(sigma) or sigma < 0:
+        raise InputError(f"sigma must be a non-negative number, got {sigma!r}")
+    if isinstance(copies, bool) or not isinstance(copies, (int, np.integer)) or copies < 1:
+        raise InputError(f"copies must be a positive whole number, got {copies!r}")
+    if combine not in COMBINE:
+        raise InputError(f"unknown combine {combine!r}; choose one of: {', '.join(COMBINE)}")
+    opts = {sampler: sampler_options} if sampler_options else None
+    specs, solvers, per_spec, needed, options = _prepare(instance, [metric], [sampler], sweeps, reads, opts)
+    br, scale, source = schedule_range(instance, beta_range, scale)
+    if scale is None:
+        raise InputError("control errors are sized by the coupling scale; give scale= for an instance "
+                         "without a coupling alphabet")
+    runs = []
+    for k in range(int(copies)):
+        rng = as_generator(derive_seed(seed, "noise", k))
+        sd = sigma * scale
+        noisy = instance.with_couplings(instance.J + rng.normal(0.0, sd, instance.m),
+                                        instance.h + rng.normal(0.0, sd, instance.n))
+        runs.append(_run_all(noisy, instance, solvers, needed, int(reads), seed, br, schedule, options, (k,)))
+    tol = _tolerance(instance)
+    lowest = min(b.min_energy for batches in runs for b in batches.values())
+    ref = resolve_reference(instance, lowest, reference, tol)
+    per_copy = [_scores(instance, specs, solvers, per_spec, batches, ref, scale, tol, confidence, seed, (k,))[0]
+                for k, batches in enumerate(runs)]
+    values = np.array([s.value for s in per_copy], dtype=np.float64)
+    finite = values[np.isfinite(values)] if np.any(np.isfinite(values)) else values
+    value = float(COMBINE[combine](finite))
+    pick = per_copy[int(np.argmin(np.abs(values - value)))] if np.any(np.isfinite(values)) else per_copy[0]
+    kinds = sorted({s.kind for s in per_copy})
+    notes = list(ref.notes) + [
+        f"{combine} over {copies} copies with Gaussian control errors of sigma {sigma:g} x scale {scale:g} on "
+        "every coupling and field; states scored on the original instance; the interval is the range over "
+        "copies, not a confidence interval"]
+    if len(kinds) > 1:
+        notes.append("copies differ in kind (" + ", ".join(
+            f"{sum(s.kind == k for s in per_copy)} {k}" for k in kinds) + "); the figure is only as firm as the weakest")
+    notes += [n for n in pick.notes if n not in notes and n not in ref.notes]
+    return Score(
+        metric=metric, value=value, ci=(float(values.min()), float(values.max())), kind=pick.kind,
+        solver=sampler, schedule=pick.schedule, reads=pick.reads, seeds=[x for s in per_copy for x in s.seeds],
+        reference=ref.energy, reference_status=ref.status, units=pick.units, notes=notes,
+        extra={"seed": seed, "ci_is_range": True, "sigma": float(sigma), "copies": int(copies), "combine": combine,
+               "values": values.tolist(), "spread": float(values.std()) if values.size > 1 else 0.0,
+               "reference_source": ref.source, "beta_range_source": source})
+
+
+# ---------------------------------------------------------------- the metrics
+def _energies(run: _Run, c: int) -> np.ndarray:
+    return run.batches[c].energies
+
+
+def _hits(run: _Run, c: int) -> int:
+    return int(np.sum(M.successes(_energies(run, c), run.reference.energy, run.tol)))
+
+
+def _tts(run: _Run) -> Score:
+    counts, reads = run.counts, [run.batches[c].reads for c in run.counts]
+    est = M.optimal_tts(counts, [_hits(run, c) for c in counts], reads, confidence=run.confidence, seed=run.seed)
+    rows, notes = [], []
+    for c, e, r in zip(counts, est.per_effort, reads):
+        k = _hits(run, c)
+        rows.append({"sweeps": c, "successes": k, "reads": r, "p": k / r,
+                     "p_ci": list(M.binomial_interval(k, r, run.confidence)), "tts": e.value, "tts_ci": list(e.ci),
+                     "kind": e.kind, "seed": run.batches[c].seed, "seconds": run.batches[c].seconds})
+    best = counts[est.best]
+    u = run.unit
+    if est.kind == "lower bound":
+        notes.append(f"no read reached the reference energy at any number of {u} tried, so TTS99 is only a lower "
+                     f"bound; more {u} or more reads are needed to measure it")
+    elif len(counts) == 1:
+        notes.append(f"only one number of {u} was tried, so TTS99 is not optimised over anneal length: it is an "
+                     "upper bound on the optimal TTS99")
+    elif est.edge:
+        side, where = ("shortest", "fewer") if est.best == 0 else ("longest", "more")
+        notes.append(f"the best number of {u} is the {side} tried ({best}); the optimal TTS99 may be lower with "
+                     f"{where} {u}, so this figure is an upper bound (extend the grid)")
+    extra = {"q": M.Q99, "best_sweeps": best, "per_sweeps": rows}
+    b = run.batches[best]
+    if rows[est.best]["successes"]:
+        extra["tts_seconds"] = b.seconds / b.reads * M.repetitions(rows[est.best]["p"])
+        extra["tts_seconds_note"] = "wall-clock time of this machine's surrogate, call overhead included"
+    return Score("tts", est.value, est.ci, est.kind, units=u, notes=notes, extra=extra)
+
+
+def _success(run: _Run) -> Score:
+    c = run.counts[0]
+    est = M.success_probability(_energies(run, c), run.reference.energy, tol=run.tol, confidence=run.confidence)
+    return Score("success", est.value, est.ci, units="probability",
+                 extra={"sweeps": c, "successes": _hits(run, c), "method": "wilson"})
+
+
+def _residual(run: _Run) -> Score:
+    c = run.counts[0]
+    est = M.residual_energy(_energies(run, c), run.reference.energy, run.instance.n, confidence=run.confidence)
+    extra = {"sweeps": c}
+    if run.scale:
+        extra["per_spin_per_scale"] = est.value / run.scale
+    return Score("residual", est.value, est.ci, units="energy per spin", extra=extra)
+
+
+def _gap(run: _Run) -> Score:
+    short, long = run.counts
+    if not run.scale:
+        raise InputError("the anneal gap is normalised by the coupling scale; give scale= for an instance "
+                         "without a coupling alphabet")
+    a, b = _energies(run, short), _energies(run, long)
+    est = M.anneal_gap(a, b, run.instance.n, run.scale, confidence=run.confidence)
+    return Score("gap", est.value, est.ci, units="energy per spin / coupling scale",
+                 extra={"short_sweeps": short, "long_sweeps": long, "short_mean": float(a.mean()),
+                        "long_mean": float(b.mean()), "scale": run.scale})
+
+
+def _ground_set(run: _Run, c: int) -> np.ndarray:
+    b = run.batches[c]
+    found, _ = M.distinct_states(b.states, b.energies, -math.inf, run.reference.energy + run.tol)
+    known = run.reference.states
+    return found if known is None else np.unique(np.concatenate([found, known]), axis=0)
+
+
+def _ground_states(run: _Run) -> Score:
+    c = run.counts[0]
+    b = run.batches[c]
+    symmetric = not run.instance.has_fields
+    count = M.ground_state_count(b.states, b.energies, run.reference.energy, tol=run.tol, symmetric=symmetric,
+                                 known=run.reference.states)
+    notes = ["a count of distinct ground states seen, so a lower bound on the degeneracy"]
+    if symmetric:
+        notes.append("no fields: each ground state's global flip is counted too")
+    return Score("ground-states", float(count), None, "lower bound", units="states", notes=notes,
+                 extra={"sweeps": c, "found_in_reads": int(np.sum(M.successes(b.energies, run.reference.energy,
+                                                                                run.tol)))})
+
+
+def _deception(run: _Run) -> Score:
+    c = run.counts[0]
+    b = run.batches[c]
+    ground = _ground_set(run, c)
+    n = run.instance.n
+    if ground.shape[0] == 0:
+        return Score("deception", math.nan, None, units="spins", notes=[
+            "no ground state is known (none found, none planted or certified), so no distance can be measured"],
+            extra={"sweeps": c})
+    d, e1 = M.excited_distances(b.states, b.energies, run.reference.energy, ground, tol=run.tol,
+                                symmetric=not run.instance.has_fields)
+    if d.size == 0:
+        return Score("deception", math.nan, None, units="spins", notes=[
+            "every read reached the reference energy, so no excited state was seen to measure from"],
+            extra={"sweeps": c})
+    return Score("deception", float(d.mean()), (float(d.min()), float(d.max())), units="spins", notes=[
+        "mean Hamming distance from the lowest excited states found to the nearest known ground state; the "
+        "interval is their range"],
+        extra={"sweeps": c, "ci_is_range": True, "excited_energy": e1, "excited_states": int(d.size), "fraction": float(d.mean()) / n,
+               "ground_states_known": int(ground.shape[0]), "distances": d[:100].tolist()})
+
+
+for _spec in (
+    MetricSpec("tts", "time-to-solution TTS99 at the best sweep count of a grid", "grid", (10, 100, 1000),
+               "higher", _tts),
+    MetricSpec("success", "probability that a read reaches the reference energy", "one", (1000,), "lower",
+               _success),
+    MetricSpec("residual", "mean energy above the reference, per spin", "one", (1000,), "higher", _residual),
+    MetricSpec("gap", "mean energy after a short anneal minus after a long one, per spin and coupling scale",
+               "pair", (10, 1000), "higher", _gap),
+    MetricSpec("ground-states", "distinct ground states seen (a lower bound on degeneracy)", "one", (1000,),
+               "lower", _ground_states, needs_samples=False),
+    MetricSpec("deception", "Hamming distance from the lowest excited states to the nearest ground state",
+               "one", (1000,), "higher", _deception, needs_samples=False),
+):
+    METRICS.register(_spec.name, _spec)
