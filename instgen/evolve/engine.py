@@ -34,7 +34,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ..errors import ConfigError
+from ..errors import ClusterError, ConfigError
 from ..fitness import Context, Measurement, pool, value
 from ..io import atomic_write
 from ..make import rules_of, topology
@@ -348,6 +348,8 @@ class Breeder:
                 self._next_population()
                 save_checkpoint(self.out, self._state())
                 reason = self._stop_reason()
+        except ClusterError as exc:  # the checkpoint of the last finished generation stays as it was
+            raise ClusterError(_stopped(exc, self.out, self.generation)) from None
         finally:
             self.executor.close()
         return {"stopped": reason, "generations": self.generation, "evaluations": self.evaluations,
@@ -364,6 +366,14 @@ class Breeder:
             "hall_size": len(self.hall), "evaluations": self.evaluations, "seconds": seconds,
             "evaluations_per_second": evals / seconds if seconds > 0 else None, "elapsed": self.elapsed,
         }
+
+
+def _stopped(exc: ClusterError, out: Path, finished: int) -> str:
+    """What a run lost to its cluster says: what happened, where the checkpoint is, how to go on."""
+    if finished == 0:
+        return f"{exc}; the run stopped before its first generation finished; start it again"
+    return (f"{exc}; the run stopped, and its checkpoint after {finished} generation(s) is intact in {out}: "
+            f"continue with `instgen breed PRESET --out {out} --resume` (with another --cluster, or none)")
 
 
 def _slim(details: dict) -> dict:
