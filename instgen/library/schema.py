@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import sqlite3
+import time
 from collections.abc import Callable
 from pathlib import Path
 
@@ -123,15 +124,19 @@ def connect(index: Path, create: bool) -> sqlite3.Connection:
 
 
 def initialise(con: sqlite3.Connection, fingerprint_version: int) -> None:
-    """Create the tables of a new index (safe if several processes race)."""
+    """Create the tables of a new index; leaves an existing index untouched.
+
+    Safe when several processes create the same library at once: the check
+    and the creation happen inside one ``BEGIN IMMEDIATE`` transaction.
+    """
     try:
-        con.execute("PRAGMA journal_mode = WAL")
         con.execute("BEGIN IMMEDIATE")
-        # statement by statement: executescript() would commit the transaction
-        for stmt in TABLES.split(";"):
-            if stmt.strip():
-                con.execute(stmt)
-        if con.execute("SELECT value FROM meta WHERE key = 'schema_version'").fetchone() is None:
+        exists = con.execute("SELECT 1 FROM sqlite_master WHERE type = 'table' AND name = 'meta'").fetchone()
+        if not exists:
+            # statement by statement: executescript() would commit the transaction
+            for stmt in TABLES.split(";"):
+                if stmt.strip():
+                    con.execute(stmt)
             con.executemany("INSERT INTO meta (key, value) VALUES (?, ?)", [
                 ("schema_version", str(SCHEMA_VERSION)),
                 ("fingerprint_version", str(fingerprint_version)),
@@ -140,6 +145,13 @@ def initialise(con: sqlite3.Connection, fingerprint_version: int) -> None:
             con.execute("INSERT INTO migrations (version, applied, note) VALUES (?, ?, ?)",
                         (SCHEMA_VERSION, now(), "created"))
         con.execute("COMMIT")
+        if not exists:
+            for _ in range(50):  # WAL needs a moment alone with the file; others may be connecting
+                if con.execute("PRAGMA journal_mode = WAL").fetchone()[0].lower() == "wal":
+                    break
+                time.sleep(0.1)
+            else:
+                raise LibraryError("could not switch the new library index to WAL mode")
     except sqlite3.DatabaseError as exc:
         if con.in_transaction:
             con.execute("ROLLBACK")

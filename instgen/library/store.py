@@ -108,6 +108,8 @@ class Library:
         """
         root = Path(path) if path is not None else default_location()
         index = root / INDEX_NAME
+        if index.exists() and not index.is_file():
+            raise LibraryError(f"{index} is not a file; {root} is not an instgen library")
         if not index.exists():
             if not create:
                 if root.is_dir():
@@ -117,16 +119,13 @@ class Library:
             if root.exists() and (not root.is_dir() or any(p.name not in own for p in root.iterdir())):
                 raise LibraryError(f"{root} exists and is not an instgen library; choose a new or empty folder")
             (root / ENTRIES_DIR).mkdir(parents=True, exist_ok=True)
-            con = schema.connect(index, create=True)
+        con = schema.connect(index, create=create)
+        if create:  # also when the index exists: another process may be creating it right now
             try:
                 schema.initialise(con, FINGERPRINT_VERSION)
             except BaseException:
                 con.close()
                 raise
-        elif not index.is_file():
-            raise LibraryError(f"{index} is not a file; {root} is not an instgen library")
-        else:
-            con = schema.connect(index, create=False)
         try:
             schema.upgrade(con, root)
             row = con.execute("SELECT value FROM meta WHERE key = 'fingerprint_version'").fetchone()
