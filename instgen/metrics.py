@@ -238,7 +238,8 @@ def _mean_interval(x: np.ndarray, confidence: float) -> Estimate:
     mean = float(x.mean())
     if x.size < 2:
         return Estimate(mean, -math.inf, math.inf)
-    half = float(stats.t.ppf(0.5 + _check_confidence(confidence) / 2, x.size - 1)) * float(x.std(ddof=1)) / math.sqrt(x.size)
+    t = float(stats.t.ppf(0.5 + _check_confidence(confidence) / 2, x.size - 1))
+    half = t * float(x.std(ddof=1)) / math.sqrt(x.size)
     return Estimate(mean, mean - half, mean + half)
 
 

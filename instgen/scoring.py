@@ -109,9 +109,10 @@ def schedule_range(instance: Instance, beta_range=None, scale=None) -> tuple[tup
         if rules:
             from .couplings import CouplingRules
 
-            if not isinstance(rules, dict):
-                raise InputError("the instance's metadata 'rules' is not a table of coupling rules")
-            scale = CouplingRules.from_dict(rules).scale
+            try:
+                scale = CouplingRules.from_dict(rules).scale
+            except (TypeError, AttributeError):
+                raise InputError("the instance's metadata 'rules' is not a table of coupling rules") from None
             source = f"coupling alphabet {rules.get('couplings')} (scale {scale:g})"
     if beta_range is not None:
         try:
@@ -121,7 +122,8 @@ def schedule_range(instance: Instance, beta_range=None, scale=None) -> tuple[tup
         return b, scale, "beta range given by the caller"
     if scale is None:
         raise InputError("the instance carries no coupling alphabet (metadata 'rules'), so there is no default "
-                         "schedule; give a coupling scale (scale=, --scale) or a beta range (beta_range=, --beta-range)")
+                         "schedule; give a coupling scale (scale=, --scale) or a beta range "
+                         "(beta_range=, --beta-range)")
     return default_beta_range(scale), scale, source
 
 
@@ -254,7 +256,7 @@ def _scores(instance, specs, solvers, per_spec, batches, ref, scale, tol, confid
             score.seeds = [run.batches[c].seed for c in counts]
             score.reference, score.reference_status = ref.energy, ref.status
             score.notes = run.notes + score.notes
-            score.extra = {"seed": seed, "reference_source": ref.source, **score.extra}
+            score.extra = {"seed": seed, "confidence": confidence, "reference_source": ref.source, **score.extra}
             out.append(score)
     return out
 
@@ -389,13 +391,15 @@ def measure_perturbed(instance: Instance, metric: str, sigma: float, copies: int
         "copies, not a confidence interval"]
     if len(kinds) > 1:
         notes.append("copies differ in kind (" + ", ".join(
-            f"{sum(s.kind == k for s in per_copy)} {k}" for k in kinds) + "); the figure is only as firm as the weakest")
+            f"{sum(s.kind == k for s in per_copy)} {k}" for k in kinds)
+            + "); the figure is only as firm as the weakest")
     notes += [n for n in pick.notes if n not in notes and n not in ref.notes]
     return Score(
-        metric=metric, value=value, ci=(float(values.min()), float(values.max())), kind=pick.kind,
+        metric=metric, value=value, ci=(float(finite.min()), float(finite.max())), kind=pick.kind,
         solver=sampler, schedule=pick.schedule, reads=pick.reads, seeds=[x for s in per_copy for x in s.seeds],
         reference=ref.energy, reference_status=ref.status, units=pick.units, notes=notes,
-        extra={"seed": seed, "ci_is_range": True, "sigma": float(sigma), "copies": int(copies), "combine": combine,
+        extra={"seed": seed, "confidence": confidence, "ci_is_range": True, "sigma": float(sigma),
+               "copies": int(copies), "combine": combine,
                "values": values.tolist(), "spread": float(values.std()) if values.size > 1 else 0.0,
                "reference_source": ref.source, "beta_range_source": source})
 
@@ -505,7 +509,8 @@ def _deception(run: _Run) -> Score:
     return Score("deception", float(d.mean()), (float(d.min()), float(d.max())), units="spins", notes=[
         "mean Hamming distance from the lowest excited states found to the nearest known ground state; the "
         "interval is their range"],
-        extra={"sweeps": c, "ci_is_range": True, "excited_energy": e1, "excited_states": int(d.size), "fraction": float(d.mean()) / n,
+        extra={"sweeps": c, "ci_is_range": True, "excited_energy": e1, "excited_states": int(d.size),
+               "fraction": float(d.mean()) / n,
                "ground_states_known": int(ground.shape[0]), "distances": d[:100].tolist()})
 
 

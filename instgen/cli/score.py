@@ -160,7 +160,8 @@ def describe_schedule(d: dict) -> str:
     if "restarts" in d:
         return f"{kind}: {d['restarts']} descents per read"
     if kind.startswith("tabu"):
-        return f"{kind}: {sweeps} x n evaluated flips per read, tenure {d.get('tenure')}"
+        return (f"{kind}: a budget of {sweeps} sweeps per read (one sweep = n candidate flips evaluated), "
+                f"tenure {d.get('tenure')}")
     return kind or json.dumps(d)
 
 
@@ -202,8 +203,6 @@ def run(args):
     if not 0 < args.confidence < 1:
         raise InputError(f"--confidence must lie strictly between 0 and 1, got {args.confidence}")
     inst, scores = compute(args)
-    for s in scores:
-        s.extra.setdefault("confidence", args.confidence)
     if args.json:
         print_json({"file": args.file, "n": inst.n, "m": inst.m, "graph": inst.graph,
                     "scores": [_finite(s.to_dict()) for s in scores]})

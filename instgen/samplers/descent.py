@@ -54,7 +54,7 @@ class RestartDescent(Sampler):
             ss = SteepestDescentSolver().sample(bqm, num_reads=rows * restarts,
                                                 seed=derive_seed(seed, "chunk", chunk))
             found = index_states(ss, n).reshape(rows, restarts, n)
-            energies = instance.energies(found.reshape(-1, n)).reshape(rows, restarts)
+            energies = np.asarray(ss.record.energy, dtype=np.float64).reshape(rows, restarts)
             best = np.argmin(energies, axis=1)
             states[start:start + rows] = found[np.arange(rows), best]
             flips += int(np.sum(ss.record.num_steps))
