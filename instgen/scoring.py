@@ -191,8 +191,9 @@ def _counts(spec: MetricSpec, sweeps) -> tuple[int, ...]:
 def _recipe(schedule: dict, counts) -> dict:
     """A batch's schedule without per-sweep arrays (rebuilt from the recipe), with every count used."""
     d = {k: v for k, v in schedule.items() if not isinstance(v, list) or k == "beta_range"}
-    if "sweeps" in d:
-        d["sweeps"] = list(counts) if len(counts) > 1 else counts[0]
+    for key in ("sweeps", "restarts"):  # the effort each solver took from the schedule
+        if d.get(key) == counts[0]:
+            d[key] = list(counts) if len(counts) > 1 else counts[0]
     return d
 
 
@@ -229,6 +230,11 @@ def _prepare(instance, metrics, solvers, sweeps, reads, options):
             if bad:
                 raise InputError(f"the {name} sampler lists the lowest states instead of sampling, so "
                                  f"{', '.join(bad)} would mean nothing under it; use ground-states or deception")
+    for name, opts in options.items():
+        fixed = getattr(SAMPLERS.get(name), "effort_option", None)
+        if fixed and fixed in (opts or {}):
+            raise InputError(f"when scoring, {name}'s effort comes from the sweep counts; give sweeps instead "
+                             f"of the option {fixed}")
     unknown = set(options) - set(solvers)
     if unknown:
         raise InputError(f"options given for solver(s) not being run: {', '.join(sorted(unknown))}")

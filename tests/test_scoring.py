@@ -140,6 +140,10 @@ def test_bad_requests_are_input_errors(c2):
         measure(make_instance("chimera:1", seed=1), "tts", sampler="exact")
     with pytest.raises(InputError, match="no option"):
         measure(c2, "success", sweeps=10, reads=5, temperature=3)
+    with pytest.raises(InputError, match="effort comes from the sweep counts"):
+        measure_many(c2, ["tts"], ["tabu"], sweeps=[10, 100], reads=5, options={"tabu": {"sweeps": 7}})
+    with pytest.raises(InputError, match="effort comes from the sweep counts"):
+        measure(c2, "tts", sampler="descent", sweeps=[10, 100], reads=5, restarts=3)
 
 
 # ------------------------------------------------------------------ metrics

@@ -146,6 +146,8 @@ def describe_schedule(d: dict) -> str:
     kind = d.get("kind", "")
     sweeps = d.get("sweeps")
     sweeps = ",".join(str(x) for x in sweeps) if isinstance(sweeps, list) else sweeps
+    restarts = d.get("restarts")
+    restarts = ",".join(str(x) for x in restarts) if isinstance(restarts, list) else restarts
     if "temperature_beta" in d:
         shape = d.get("shape", "plain")
         if shape == "pause":
@@ -158,7 +160,7 @@ def describe_schedule(d: dict) -> str:
         b0, b1 = d["beta_range"]
         return f"{d['interpolation']} beta {b0:.4g} .. {b1:.4g} over {sweeps} sweeps"
     if "restarts" in d:
-        return f"{kind}: {d['restarts']} descents per read"
+        return f"{kind}: {restarts} descents per read"
     if kind.startswith("tabu"):
         return (f"{kind}: a budget of {sweeps} sweeps per read (one sweep = n candidate flips evaluated), "
                 f"tenure {d.get('tenure')}")
@@ -193,6 +195,8 @@ def _print(path, inst, scores):
             bound = {"lower bound": ">= ", "upper bound": "<= "}.get(row["kind"], "")
             print(f"      {row['sweeps']:>8} {s.units}: p = {row['p']:.4g} [{_num(row['p_ci'][0])} .. "
                   f"{_num(row['p_ci'][1])}], TTS99 {bound}{_num(row['tts'])}")
+        if "tts_seconds" in s.extra:
+            print(f"      TTS99 in seconds: {_num(s.extra['tts_seconds'])} (wall clock on this machine, overhead included)")
         print(f"      sampler seeds {', '.join(str(x) for x in s.seeds[:8])}" + (" ..." if len(s.seeds) > 8 else ""))
         for note in s.notes:
             if note not in shown:

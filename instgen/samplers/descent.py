@@ -39,6 +39,8 @@ class RestartDescent(Sampler):
     uses_schedule = False
     #: What a "sweep" of effort means for this solver in time-to-solution figures.
     effort_unit = "descents"
+    #: The option that overrides the effort taken from the schedule.
+    effort_option = "restarts"
 
     def _run(self, instance, schedule, reads, seed, options):
         from dwave.samplers import SteepestDescentSolver

@@ -48,6 +48,8 @@ class Tabu(Sampler):
     name = "tabu"
     options = {"sweeps": None, "tenure": None}
     uses_schedule = False
+    #: The option that overrides the effort taken from the schedule.
+    effort_option = "sweeps"
 
     def _run(self, instance, schedule, reads, seed, options):
         from dwave.samplers import TabuSampler
