@@ -1,0 +1,428 @@
+"""Frustrated-loop planting (Hen et al., PRA 92, 042325 (2015)).
+
+A loop is a simple cycle of the graph.  In the planted gauge (planted state all
++1) a loop of weight w puts -w (ferromagnetic) on every edge but one, and +w on
+that one *frustrated* edge.  Every state breaks an odd number of a loop's
+edges, so a loop's energy is at least -w (L - 2), which the all +1 state
+reaches.  The instance is the sum of its loops, hence
+
+    E(s) >= sum_j -w_j (L_j - 2) = E(planted)
+
+for every state s: the planted state is a ground state and E0 is a proof.  The
+final gauge hides it.  A cap R on the accumulated |J| of each edge gives the
+range-limited variant (a loop that would break the cap is drawn again).
+
+The API is built for repeated, cheap use by the breeding engine::
+
+    graph = LoopGraph.of(topology)               # once per run
+    loop = random_loop(graph, rng, min_length=6) # a new loop
+    J = loop_couplings(loops, graph.m, cap=3, gauge=g, edges=graph.edges)
+    inst = loop_instance(topology, loops, g, cap=3)
+
+and :func:`loops_of` recovers the loop list of a planted instance.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+
+import numpy as np
+
+from ..errors import CertificationError, FormatError, InputError
+from ..seeds import as_generator
+from . import PlantedFamily, construction_of
+
+_TOL = 1e-9
+
+
+@dataclasses.dataclass(frozen=True, eq=False)
+class Loop:
+    """One frustrated loop, in the planted gauge.
+
+    ``spins[k]`` and ``spins[(k + 1) % L]`` are joined by edge ``edges[k]`` (an
+    index into the topology's edge array); ``frustrated`` is the position in
+    ``edges`` of the one antiferromagnetic edge; ``weight`` is w > 0.
+
+    >>> loop = Loop(spins=(0, 1, 2), edges=(0, 2, 1), frustrated=1, weight=1.0)
+    >>> loop.length, loop.bound, loop.values().tolist()
+    (3, -1.0, [-1.0, 1.0, -1.0])
+    """
+
+    spins: tuple
+    edges: tuple
+    frustrated: int
+    weight: float = 1.0
+
+    def __post_init__(self):
+        object.__setattr__(self, "spins", tuple(int(x) for x in self.spins))
+        object.__setattr__(self, "edges", tuple(int(x) for x in self.edges))
+        object.__setattr__(self, "frustrated", int(self.frustrated))
+        object.__setattr__(self, "weight", float(self.weight))
+
+    @property
+    def length(self) -> int:
+        return len(self.spins)
+
+    @property
+    def bound(self) -> float:
+        """The loop's ground-state energy, -w (L - 2)."""
+        return -self.weight * (self.length - 2)
+
+    def values(self) -> np.ndarray:
+        """Couplings of ``edges`` in the planted gauge: -w, and +w on the frustrated edge."""
+        v = np.full(self.length, -self.weight)
+        v[self.frustrated] = self.weight
+        return v
+
+    def to_list(self) -> list:
+        """``[spins, edges, frustrated, weight]``, JSON-friendly."""
+        return [list(self.spins), list(self.edges), self.frustrated, self.weight]
+
+    @classmethod
+    def from_list(cls, item) -> Loop:
+        try:
+            spins, edges, frustrated, weight = item
+            return cls(spins, edges, frustrated, weight)
+        except (TypeError, ValueError):
+            raise FormatError(f"a loop must be [spins, edges, frustrated, weight], got {str(item)[:80]}") from None
+
+
+@dataclasses.dataclass(frozen=True, eq=False)
+class LoopGraph:
+    """A graph prepared for random walks: CSR neighbours with the edge index of each step."""
+
+    n: int
+    edges: np.ndarray
+    indptr: np.ndarray
+    neighbours: np.ndarray
+    edge_ids: np.ndarray
+    reverse: np.ndarray
+
+    @property
+    def m(self) -> int:
+        return int(self.edges.shape[0])
+
+    @classmethod
+    def of(cls, graph) -> LoopGraph:
+        """From a LoopGraph, Topology, Instance, spec string, or ``(n, edges)`` pair.
+
+        >>> LoopGraph.of("chimera:1").m
+        16
+        """
+        if isinstance(graph, LoopGraph):
+            return graph
+        if isinstance(graph, tuple) and len(graph) == 2:
+            n, edges = int(graph[0]), np.asarray(graph[1], dtype=np.int32).reshape(-1, 2)
+        else:
+            if isinstance(graph, str):
+                from ..make import topology
+
+                graph = topology(graph)
+            n, edges = int(graph.n), np.asarray(graph.edges, dtype=np.int32)
+        rows = np.concatenate([edges[:, 0], edges[:, 1]])
+        cols = np.concatenate([edges[:, 1], edges[:, 0]])
+        ids = np.concatenate([np.arange(len(edges)), np.arange(len(edges))])
+        order = np.lexsort((cols, rows))
+        indptr = np.zeros(n + 1, dtype=np.int64)
+        np.add.at(indptr, rows + 1, 1)
+        rows, cols, ids = rows[order], cols[order], ids[order]
+        # reverse[k]: the slot of the same edge seen from the other end
+        half = np.argsort(ids * 2 + (rows > cols), kind="stable")
+        reverse = np.empty(len(ids), dtype=np.int64)
+        reverse[half[0::2]] = half[1::2]
+        reverse[half[1::2]] = half[0::2]
+        return cls(n, edges, np.cumsum(indptr), cols.astype(np.int64), ids.astype(np.int64), reverse)
+
+
+def random_loop(graph, rng=None, min_length: int = 4, max_length: int | None = None,
+                weight: float = 1.0, max_steps: int | None = None, start: int | None = None) -> Loop:
+    """A random simple cycle from a loop-erased, non-backtracking random walk.
+
+    The walk starts at a random spin (or ``start``) and never steps straight
+    back along the edge it came in on.  When it reaches a spin already on its
+    path, the piece between the two visits is a cycle: it is kept when its
+    length lies in [min_length, max_length], otherwise it is erased from the
+    path and the walk goes on; the part walked before the cycle is dropped.
+    The frustrated edge is chosen uniformly on the cycle.
+
+    Parameters
+    ----------
+    graph : LoopGraph, Topology, Instance or spec
+        Pass a :class:`LoopGraph` when calling repeatedly.
+    rng : seed or Generator
+    min_length, max_length : int
+        Allowed cycle lengths (max_length None: no limit).
+    weight : float
+        The loop's weight w > 0.
+    max_steps : int, optional
+        Give up (InputError) after this many steps (default 50 n + 1000).
+
+    Examples
+    --------
+    >>> loop = random_loop("square:4", rng=3, min_length=4)
+    >>> loop.length >= 4, loop.values().sum() == -(loop.length - 2)
+    (True, True)
+    """
+    g = LoopGraph.of(graph)
+    rng = as_generator(rng)
+    if min_length < 3:
+        raise InputError(f"min_length must be at least 3 (a loop needs three spins), got {min_length}")
+    if max_length is not None and max_length < min_length:
+        raise InputError(f"max_length {max_length} is below min_length {min_length}")
+    if not (np.isfinite(weight) and weight > 0):
+        raise InputError(f"a loop weight must be a positive number, got {weight}")
+    deg = np.diff(g.indptr)
+    if start is None:
+        starts = np.flatnonzero(deg >= 2)
+        if starts.size == 0:
+            raise InputError("the graph has no cycles (every spin has fewer than two neighbours)")
+    budget = max_steps if max_steps is not None else 50 * g.n + 1000
+    indptr, nbr, eid, rev = g.indptr, g.neighbours, g.edge_ids, g.reverse
+    draws = rng.random(min(budget, 256) + 1)
+    used = 0
+    steps = 0
+    while steps < budget:
+        v0 = int(start) if start is not None else int(starts[rng.integers(starts.size)])
+        path, slots, pos = [v0], [], {v0: 0}
+        while steps < budget:
+            steps += 1
+            if used == draws.size:
+                draws, used = rng.random(draws.size), 0
+            r = draws[used]
+            used += 1
+            v = path[-1]
+            lo, hi = int(indptr[v]), int(indptr[v + 1])
+            back = int(rev[slots[-1]]) if slots else -1
+            choices = hi - lo - (back >= 0)
+            if choices <= 0:
+                break  # dead end: start again
+            k = lo + int(r * choices)
+            if 0 <= back <= k:
+                k += 1
+            u = int(nbr[k])
+            if u in pos:
+                p = pos[u]
+                size = len(path) - p
+                if size >= min_length and (max_length is None or size <= max_length):
+                    cyc = [int(eid[x]) for x in slots[p:]] + [int(eid[k])]
+                    return Loop(path[p:], cyc, int(rng.integers(size)), weight)
+                for w in path[p + 1:]:
+                    del pos[w]
+                del path[p + 1:]
+                del slots[p:]
+            else:
+                pos[u] = len(path)
+                path.append(u)
+                slots.append(k)
+    raise InputError(f"no cycle of length {min_length}..{max_length or 'any'} found in {budget} steps of a "
+                     "random walk; the graph may have none that long")
+
+
+def planted_bound(loops) -> float:
+    """E0 = -sum_j w_j (L_j - 2) (Hen et al. 2015): the planted state's energy.
+
+    >>> planted_bound([Loop((0, 1, 2, 3), (0, 1, 2, 3), 0)])
+    -2.0
+    """
+    return float(sum(loop.bound for loop in loops))
+
+
+def accumulate(loops, m: int) -> np.ndarray:
+    """The summed planted-gauge couplings of ``loops`` on ``m`` edges (no cap, no gauge)."""
+    if not loops:
+        return np.zeros(m)
+    idx = np.concatenate([np.asarray(loop.edges, dtype=np.int64) for loop in loops])
+    val = np.concatenate([loop.values() for loop in loops])
+    if idx.size and (idx.min() < 0 or idx.max() >= m):
+        raise InputError(f"a loop refers to an edge outside 0..{m - 1}")
+    return np.bincount(idx, weights=val, minlength=m)
+
+
+def fits(accumulated: np.ndarray, loop: Loop, cap: float | None) -> bool:
+    """True when adding ``loop`` to ``accumulated`` keeps every |J| <= cap."""
+    if cap is None:
+        return True
+    after = accumulated[list(loop.edges)] + loop.values()
+    return bool(np.all(np.abs(after) <= cap + _TOL))
+
+
+def loop_couplings(loops, m: int, cap: float | None = None, gauge=None, edges=None) -> np.ndarray:
+    """Couplings J (m,) of a loop set: accumulated in the planted gauge, then gauged.
+
+    Parameters
+    ----------
+    loops : sequence of Loop
+    m : int
+        Number of edges of the topology.
+    cap : float, optional
+        Largest |J| allowed on an edge; a loop set that breaks it is an InputError.
+    gauge : (n,) ±1 array, optional
+        The planted state; J_ij is multiplied by g_i g_j (needs ``edges``).
+    edges : (m, 2) array, optional
+
+    Examples
+    --------
+    >>> tri = Loop((0, 1, 2), (0, 2, 1), frustrated=0)
+    >>> loop_couplings([tri], 3).tolist()
+    [1.0, -1.0, -1.0]
+    >>> loop_couplings([tri], 3, gauge=[1, -1, 1], edges=[[0, 1], [0, 2], [1, 2]]).tolist()
+    [-1.0, -1.0, 1.0]
+    """
+    J = accumulate(loops, m)
+    if cap is not None and np.any(np.abs(J) > cap + _TOL):
+        worst = float(np.abs(J).max())
+        raise InputError(f"the loops accumulate |J| = {worst:g} on an edge, above the cap {cap:g}")
+    if gauge is not None:
+        if edges is None:
+            raise InputError("loop_couplings needs the edge array to apply a gauge")
+        g = np.asarray(gauge, dtype=np.float64)
+        e = np.asarray(edges, dtype=np.int64).reshape(-1, 2)
+        J = J * g[e[:, 0]] * g[e[:, 1]]
+    return J
+
+
+def check_loop(loop: Loop, edges: np.ndarray) -> None:
+    """Raise InputError unless ``loop`` is a simple cycle of the graph with a valid frustrated edge."""
+    L = loop.length
+    if L < 3 or len(loop.edges) != L:
+        raise InputError(f"a loop needs at least 3 spins and one edge per spin, got {L} and {len(loop.edges)}")
+    if len(set(loop.spins)) != L or len(set(loop.edges)) != L:
+        raise InputError("a loop visits a spin or an edge twice (not a simple cycle)")
+    if not 0 <= loop.frustrated < L:
+        raise InputError(f"the frustrated edge position {loop.frustrated} is outside 0..{L - 1}")
+    if not (np.isfinite(loop.weight) and loop.weight > 0):
+        raise InputError(f"a loop weight must be positive, got {loop.weight}")
+    e = np.asarray(loop.edges)
+    if e.min() < 0 or e.max() >= len(edges):
+        raise InputError("a loop refers to an edge that is not in the graph")
+    s = np.asarray(loop.spins)
+    ends = np.sort(np.stack([s, np.roll(s, -1)], axis=1), axis=1)
+    if not np.array_equal(ends, np.asarray(edges)[e]):
+        raise InputError("a loop's edges do not join its consecutive spins")
+
+
+def loop_instance(graph, loops, gauge, cap: float | None = None, **construction):
+    """An Instance of a loop set on ``graph`` with planted state ``gauge``.
+
+    Every edge of the graph is kept (edges no loop uses get J = 0), so loop
+    edge indices stay valid.  ``construction`` items are added to
+    ``metadata["construction"]`` beside the family, the loop list and E0.
+
+    >>> g = LoopGraph.of("square:3")
+    >>> inst = loop_instance("square:3", [random_loop(g, 1)], gauge=[1] * 9)
+    >>> inst.planted_energy == inst.metadata["construction"]["planted_energy"]
+    True
+    """
+    from ..instance import Instance
+    from ..make import topology
+
+    topo = topology(graph) if isinstance(graph, str) else graph
+    g = np.asarray(gauge, dtype=np.int8)
+    J = loop_couplings(loops, topo.m, cap=cap, gauge=g, edges=topo.edges)
+    con = {"family": "loops", **construction, "cap": cap, "loop_count": len(loops),
+           "planted_energy": planted_bound(loops), "loops": [loop.to_list() for loop in loops]}
+    return Instance(edges=topo.edges, J=J, n=topo.n, labels=getattr(topo, "labels", None),
+                    graph=getattr(topo, "spec", getattr(topo, "graph", "")), planted=g,
+                    metadata={"kind": "planted", "construction": con})
+
+
+def plant_loops(graph, density: float = 0.3, seed=None, *, min_length: int = 4, max_length: int | None = None,
+                cap: float | None = None, weights=(1.0,), max_redraws: int = 200):
+    """A frustrated-loop instance with ``round(density * n)`` loops.
+
+    Parameters
+    ----------
+    graph : str or Topology
+    density : float
+        Loops per spin, alpha = loops / n (> 0).
+    seed : int, optional
+    min_length, max_length : int
+        Allowed loop lengths (see :func:`random_loop`).
+    cap : float, optional
+        Range limit R: no edge may accumulate |J| > R.  A loop that would break
+        it is drawn again, up to ``max_redraws`` times per loop.
+    weights : sequence of float
+        Loop weights, each loop drawing one uniformly (default: all 1).
+
+    Examples
+    --------
+    >>> inst = plant_loops("chimera:2", density=0.3, seed=4, cap=2)
+    >>> loops = loops_of(inst)
+    >>> inst.energy(inst.planted) == planted_bound(loops), inst.scale <= 2
+    (True, True)
+    """
+    from ..instance import random_gauge
+    from ..make import topology
+
+    if not (isinstance(density, (int, float)) and np.isfinite(density) and density > 0):
+        raise InputError(f"loop density must be a positive number of loops per spin, got {density!r}")
+    w = np.asarray(weights, dtype=np.float64).reshape(-1)
+    if w.size == 0 or not np.all(np.isfinite(w)) or np.any(w <= 0):
+        raise InputError(f"loop weights must be positive numbers, got {weights!r}")
+    if cap is not None and not (np.isfinite(cap) and cap >= w.min()):
+        raise InputError(f"the cap must be at least the smallest loop weight ({w.min():g}), got {cap!r}")
+    topo = topology(graph)
+    lg = LoopGraph.of(topo)
+    rng = as_generator(seed)
+    count = max(1, int(round(density * topo.n)))
+    acc = np.zeros(topo.m)
+    loops = []
+    for _ in range(count):
+        for _attempt in range(max_redraws):
+            loop = random_loop(lg, rng, min_length, max_length, weight=float(w[rng.integers(w.size)]))
+            if fits(acc, loop, cap):
+                break
+        else:
+            raise InputError(f"only {len(loops)} of {count} loops fit under the cap {cap:g} on {topo.spec}; "
+                             "lower the density, raise the cap, or shorten the loops")
+        acc[list(loop.edges)] += loop.values()
+        loops.append(loop)
+    gauge = random_gauge(topo.n, rng)
+    return loop_instance(topo, loops, gauge, cap=cap, density=float(density), min_length=int(min_length),
+                         max_length=max_length, weights=w.tolist(),
+                         seed=int(seed) if isinstance(seed, (int, np.integer)) else None)
+
+
+def loops_of(instance) -> list[Loop]:
+    """The loop list stored in a loop-planted instance's metadata."""
+    con = construction_of(instance, "loops")
+    items = con.get("loops")
+    if not isinstance(items, list):
+        raise FormatError("the loop construction has no 'loops' list")
+    return [Loop.from_list(item) for item in items]
+
+
+def verify(instance) -> dict:
+    """Check a loop instance's proof; details for a Certificate, or CertificationError.
+
+    Checks that every stored loop is a simple cycle of the instance's graph, that
+    the loops rebuild the couplings exactly (under the planted gauge), that there
+    are no fields, and that the planted energy equals -sum w (L - 2).
+    """
+    loops = loops_of(instance)
+    try:
+        for loop in loops:
+            check_loop(loop, instance.edges)
+    except InputError as exc:
+        raise CertificationError(f"stored loop is not valid: {exc}") from None
+    if instance.has_fields:
+        raise CertificationError("the instance has fields, which the loop construction does not account for")
+    J = loop_couplings(loops, instance.m, gauge=instance.planted, edges=instance.edges)
+    tol = _TOL * max(1.0, instance.scale)
+    if not np.allclose(J, instance.J, rtol=0, atol=tol):
+        bad = int(np.sum(~np.isclose(J, instance.J, rtol=0, atol=tol)))
+        raise CertificationError(f"the stored loops do not rebuild the couplings ({bad} edges differ)")
+    bound = planted_bound(loops)
+    energy = instance.energy(instance.planted)
+    if abs(energy - bound) > tol * max(1, instance.m):
+        raise CertificationError(f"the planted state's energy {energy:g} differs from the loop bound {bound:g}")
+    return {
+        "family": "loops", "loops": len(loops), "bound": bound,
+        "proof": ("the couplings are a sum of frustrated loops, each with exactly one antiferromagnetic edge "
+                  "in the planted gauge; every state breaks at least one edge of every loop, so "
+                  "E(s) >= -sum w (L - 2), which the planted state reaches"),
+    }
+
+
+FAMILY = PlantedFamily("loops", plant_loops, verify,
+                       "frustrated loops on any graph; density = loops per spin (Hen et al. 2015)")
