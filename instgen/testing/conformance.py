@@ -33,14 +33,22 @@ from ..samplers import SAMPLERS, Sampler, Schedule, default_beta_range
 from ..seeds import SEED_LIMIT
 
 
-def small_instances() -> list[Instance]:
-    """Small test instances (8 to 10 spins), each carrying its coupling rules.
+def small_instances(integers_only: bool = False) -> list[Instance]:
+    """Small test instances (3 to 10 spins), each carrying its coupling rules.
 
     A frustrated triangle with a field, Chimera cells with ±1 couplings and
     fields, a Gaussian spin glass with Gaussian fields on a random graph, and
-    a 3x3 grid with integer couplings up to 3.
+    a 3x3 grid with integer couplings up to 3.  With ``integers_only`` (for
+    samplers that take whole-number couplings only) the triangle's field is 1
+    and the Gaussian glass is replaced by Chimera cells with couplings up to 2.
     """
     import networkx as nx
+
+    if integers_only:
+        tri = Instance(edges=[[0, 1], [0, 2], [1, 2]], J=[1.0, 1.0, 1.0], h=[1.0, 0.0, 0.0],
+                       metadata={"rules": {"couplings": "pm1", "fields": "pm1"}})
+        return [tri, make_instance("chimera:1", "pm1", "pm1", seed=2),
+                make_instance("chimera:1", "int:2", "pm1", seed=6), make_instance("square:3", "int:3", "none", seed=4)]
 
     tri = Instance(edges=[[0, 1], [0, 2], [1, 2]], J=[1.0, 1.0, 1.0], h=[0.5, 0.0, 0.0],
                    metadata={"rules": {"couplings": "pm1", "fields": "levels:0.5"}})
@@ -105,6 +113,8 @@ def check_sampler(sampler: str | Sampler, *, sweeps: int = 1000, reads: int = 16
     seed : int
     instances : list of Instance, optional
         Defaults to :func:`small_instances`; each needs ``metadata["rules"]``.
+        A sampler limited to whole-number couplings passes
+        ``small_instances(integers_only=True)``.
     options : dict, optional
         Sampler options used in every run.
 
@@ -116,7 +126,8 @@ def check_sampler(sampler: str | Sampler, *, sweeps: int = 1000, reads: int = 16
     s = SAMPLERS.get(sampler)() if isinstance(sampler, str) else sampler
     assert isinstance(s, Sampler), f"{sampler!r} is not a Sampler"
     opts = dict(options or {})
-    for k, inst in enumerate(instances or small_instances()):
+    instances = list(instances or small_instances())
+    for k, inst in enumerate(instances):
         who = f"sampler {s.name!r} on test instance {k} ({inst!r})"
         long = Schedule(sweeps=sweeps, beta_range=default_beta_range(_scale(inst)))
         short = Schedule(sweeps=max(2, sweeps // 10), beta_range=long.beta_range)
@@ -132,7 +143,7 @@ def check_sampler(sampler: str | Sampler, *, sweeps: int = 1000, reads: int = 16
         relabelled = inst.replace(labels=[f"q{order[i]}" for i in range(inst.n)])
         assert _same(again, s.run(relabelled, short, reads=reads, seed=seed, **opts)), \
             f"{who}: the same couplings under other labels gave a different batch"
-    inst = small_instances()[0]
+    inst = instances[0]
     try:
         s.run(inst, Schedule(sweeps=10), reads=2, seed=seed, no_such_option_xyz=1)
     except InputError:

@@ -50,3 +50,9 @@ def test_kit_rejects_a_sampler_that_misses_the_minimum():
 def test_kit_rejects_a_sampler_that_ignores_its_seed():
     with pytest.raises(AssertionError, match="same seed"):
         check_sampler(_IgnoresSeed(), reads=16, instances=small_instances()[1:2])
+
+
+def test_integer_instances_for_integer_only_samplers():
+    insts = small_instances(integers_only=True)
+    assert all(np.all(i.J == np.round(i.J)) and np.all(i.h == np.round(i.h)) for i in insts)
+    check_sampler("sa", instances=insts, sweeps=300)
