@@ -179,7 +179,7 @@ def _list(args):
     rows = [("ID", "GRAPH", "N", "M", "FIELDS", "OPTIMUM", col, "TAGS")]
     for e in entries:
         s = e.latest(metric, args.solver) if metric else None
-        figure = (f"{s.value:.4g}" + (" (bound)" if s.kind != "value" else "")) if s else (
+        figure = (f"{s.value:.4g}" + (f" ({s.kind})" if s.kind != "value" else "")) if s else (
             "-" if metric else str(len(e.scores)))
         rows.append((e.id, e.graph or "-", str(e.n), str(e.m), "yes" if e.has_fields else "no",
                      e.optimum_text, figure, ",".join(e.tags) or "-"))

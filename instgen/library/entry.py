@@ -18,6 +18,7 @@ from ..errors import FormatError, InputError, LibraryError
 from ..instance import Instance
 from ..io import loads_instance
 from ..records import Certificate, Score
+from .fingerprint import fingerprint
 
 #: Characters of the fingerprint shown as an entry's short id.
 SHORT_ID = 12
@@ -38,6 +39,25 @@ def encode_state(state) -> str:
 def decode_state(text: str) -> np.ndarray:
     raw = np.frombuffer(text.encode("ascii"), dtype=np.uint8)
     return np.where(raw == ord("+"), 1, -1).astype(np.int8)
+
+
+def json_safe(obj):
+    """A copy with non-finite floats written as the strings "inf", "-inf", "nan".
+
+    JSON has no such numbers and instance files refuse them, yet a score may
+    be infinite (nothing reached the target) or carry an open-ended interval.
+    ``float()`` reads the strings back.
+
+    >>> json_safe({"ci": [1.5, float("inf")]})
+    {'ci': [1.5, 'inf']}
+    """
+    if isinstance(obj, float) and not np.isfinite(obj):
+        return str(obj)
+    if isinstance(obj, dict):
+        return {k: json_safe(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [json_safe(v) for v in obj]
+    return obj
 
 
 def certificate_of(inst: Instance) -> Certificate | None:
@@ -85,6 +105,8 @@ def scores_of(inst: Instance) -> list[Score]:
         try:
             score = Score.from_dict(d)
             score.value = float(score.value)
+            if score.ci is not None:
+                score.ci = tuple(float(x) for x in score.ci)
         except (TypeError, ValueError, KeyError) as exc:
             raise InputError(f"score record {k} in the instance is malformed ({exc})") from None
         if not isinstance(score.metric, str) or not score.metric:
@@ -105,7 +127,7 @@ def clean_tags(tags) -> list[str]:
 
 def score_key(score: Score) -> str:
     """Identity of a measurement: the same record filed twice is stored once."""
-    text = json.dumps(score.to_dict(), sort_keys=True, separators=(",", ":"), default=str)
+    text = json.dumps(json_safe(score.to_dict()), sort_keys=True, separators=(",", ":"), default=str)
     return hashlib.sha256(text.encode()).hexdigest()
 
 
@@ -185,8 +207,8 @@ class Entry:
         meta = dict(inst.metadata)
         meta.pop("certificate", None)
         if self.certificate is not None:
-            meta["certificate"] = self.certificate.to_dict()
-        meta.update(scores=[s.to_dict() for s in self.scores], tags=list(self.tags),
+            meta["certificate"] = json_safe(self.certificate.to_dict())
+        meta.update(scores=[json_safe(s.to_dict()) for s in self.scores], tags=list(self.tags),
                     provenance=dict(self.provenance), fingerprint=self.fingerprint)
         return inst.replace(metadata=meta)
 
@@ -197,7 +219,7 @@ class Entry:
             cert = self.certificate.to_dict()
             if not state:
                 cert.pop("state")
-        return {
+        return json_safe({
             "id": self.id, "fingerprint": self.fingerprint, "graph": self.graph, "n": self.n, "m": self.m,
             "couplings": self.couplings, "fields": self.fields, "has_fields": self.has_fields,
             "certified": self.certified, "optimum": self.optimum_text, "certificate": cert,
@@ -205,4 +227,36 @@ class Entry:
             "provenance": self.provenance, "construction": self.construction, "rules": self.rules,
             "created": self.created, "added": self.added, "file": str(self.path), "sha256": self.sha256,
             "times_filed": self.sightings,
-        }
+        })
+
+    def check(self) -> list[str]:
+        """Problems with this entry's file and certificate (empty when all is well)."""
+        where = f"entry {self.id}"
+        try:
+            raw = self.path.read_bytes()
+        except OSError:
+            return [f"{where}: file {self.path.name} is missing"]
+        out = []
+        if hashlib.sha256(raw).hexdigest() != self.sha256:
+            out.append(f"{where}: file {self.path.name} has changed since it was filed (checksum mismatch)")
+        try:
+            inst = self.instance(check=False)
+        except (LibraryError, FormatError) as exc:
+            return out + [f"{where}: {exc}"]
+        if fingerprint(inst) != self.fingerprint:
+            out.append(f"{where}: the file holds a different instance (its fingerprint does not match its name)")
+        if (inst.n, inst.m) != (self.n, self.m):
+            out.append(f"{where}: the index says n={self.n}, m={self.m} but the file has n={inst.n}, m={inst.m}")
+        c = self.certificate
+        if c is not None:
+            if len(c.state) != inst.n:
+                out.append(f"{where}: the stored ground state has {len(c.state)} spins, the instance {inst.n}")
+            else:
+                actual = inst.energy(c.state)
+                if abs(actual - c.energy) > energy_tolerance(inst):
+                    out.append(f"{where}: stored optimum {c.energy!r} is not the energy {actual!r} of the stored state")
+                if inst.planted is not None and c.status in CERTIFIED and \
+                        inst.planted_energy < c.energy - energy_tolerance(inst):
+                    out.append(f"{where}: the planted state has energy {inst.planted_energy!r}, below the certified "
+                               f"optimum {c.energy!r}")
+        return out

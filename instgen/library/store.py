@@ -31,14 +31,14 @@ import sqlite3
 from pathlib import Path
 
 from .. import __version__
-from ..errors import FormatError, InputError, LibraryError
+from ..errors import InputError, LibraryError
 from ..instance import Instance
 from ..io import atomic_write, dumps_instance
 from ..records import Certificate, Score
 from . import schema
 from .entry import (CERTIFIED, SHORT_ID, Entry, certificate_of, clean_tags, decode_state,
-                    encode_state, energy_tolerance, score_key, scores_of)
-from .fingerprint import FINGERPRINT_VERSION, canonical_form, carry_state, fingerprint
+                    encode_state, energy_tolerance, json_safe, score_key, scores_of)
+from .fingerprint import FINGERPRINT_VERSION, canonical_form, carry_state
 
 INDEX_NAME = "index.sqlite"
 ENTRIES_DIR = "entries"
@@ -170,6 +170,10 @@ class Library:
         try:
             yield con
             con.execute("COMMIT")
+        except sqlite3.DatabaseError as exc:
+            if con.in_transaction:
+                con.execute("ROLLBACK")
+            raise LibraryError(f"the library index in {self.root} failed: {exc}") from None
         except BaseException:
             if con.in_transaction:
                 con.execute("ROLLBACK")
@@ -200,7 +204,7 @@ class Library:
                 **(provenance or {})}
         if "seed" not in prov and isinstance(instance.metadata.get("seed"), int):
             prov["seed"] = instance.metadata["seed"]
-        text = dumps_instance(instance, provenance=prov)
+        text = dumps_instance(instance.replace(metadata=json_safe(instance.metadata)), provenance=json_safe(prov))
         digest = hashlib.sha256(text.encode()).hexdigest()
         prov_json = json.dumps(prov, sort_keys=True, default=str)
         now = schema.now()
@@ -415,7 +419,7 @@ class Library:
             problems.append(f"the index fails SQLite's integrity check: {check}")
         entries = self._entries("1", ())
         for e in entries:
-            problems += _check_entry(e)
+            problems += e.check()
         with self._transaction(write=tidy) as con:
             known = {r[0] for r in con.execute("SELECT file FROM entries")}
             stray = sorted(p for p in (self.root / ENTRIES_DIR).iterdir()
@@ -457,35 +461,3 @@ class Library:
             written += export_instance(instances[e.fingerprint], stem, f)
         return written
 
-
-def _check_entry(e: Entry) -> list[str]:
-    """Problems with one entry's file and certificate."""
-    where = f"entry {e.id}"
-    try:
-        raw = e.path.read_bytes()
-    except OSError:
-        return [f"{where}: file {e.path.name} is missing"]
-    out = []
-    if hashlib.sha256(raw).hexdigest() != e.sha256:
-        out.append(f"{where}: file {e.path.name} has changed since it was filed (checksum mismatch)")
-    try:
-        inst = e.instance(check=False)
-    except (LibraryError, FormatError) as exc:
-        return out + [f"{where}: {exc}"]
-    if fingerprint(inst) != e.fingerprint:
-        out.append(f"{where}: the file holds a different instance (its fingerprint does not match its name)")
-    if (inst.n, inst.m) != (e.n, e.m):
-        out.append(f"{where}: the index says n={e.n}, m={e.m} but the file has n={inst.n}, m={inst.m}")
-    c = e.certificate
-    if c is not None:
-        if len(c.state) != inst.n:
-            out.append(f"{where}: the stored ground state has {len(c.state)} spins, the instance {inst.n}")
-        else:
-            actual = inst.energy(c.state)
-            if abs(actual - c.energy) > energy_tolerance(inst):
-                out.append(f"{where}: stored optimum {c.energy!r} is not the energy {actual!r} of the stored state")
-            if inst.planted is not None and c.status in CERTIFIED and \
-                    inst.planted_energy < c.energy - energy_tolerance(inst):
-                out.append(f"{where}: the planted state has energy {inst.planted_energy!r}, below the certified "
-                           f"optimum {c.energy!r}")
-    return out

@@ -31,7 +31,7 @@ from ..errors import FormatError, InputError
 from ..export import FORMATS, check_export, export_instance
 from ..io import atomic_write, load_instance
 from . import schema
-from .entry import Entry, energy_tolerance
+from .entry import Entry, energy_tolerance, json_safe
 from .fingerprint import fingerprint
 from .store import Library, VerifyReport
 
@@ -200,7 +200,7 @@ def make_suite(library: Library, count: int, directory, metric: str | None = Non
                       for k, p in enumerate(picks, 1)],
         "files": {str(f.relative_to(directory)): _sha256(f) for f in files},
     }
-    files.append(atomic_write(directory / MANIFEST, json.dumps(manifest, indent=2, default=str) + "\n"))
+    files.append(atomic_write(directory / MANIFEST, json.dumps(json_safe(manifest), indent=2, default=str) + "\n"))
     sums = "".join(f"{_sha256(f)}  {f.relative_to(directory)}\n" for f in files)
     files.append(atomic_write(directory / SUMS, sums))
     return SuiteResult(directory, picks, metric, notes, files)

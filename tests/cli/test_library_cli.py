@@ -85,6 +85,9 @@ def test_add_list_show_export_suite_verify(tmp_path, files, library, capsys):
     code, out, _ = run(["library", "export", ident, "--format", "qubo-mtx,edgelist", "--to",
                         str(tmp_path / "out"), *lib], capsys)
     assert code == 0 and len(list((tmp_path / "out").iterdir())) == 2
+    code, out, _ = run(["library", "export", "--graph", "chimera:2", "--format", "npz", "--to",
+                        str(tmp_path / "small"), *lib], capsys)
+    assert code == 0 and len(list((tmp_path / "small").glob("*.npz"))) == 4
     code, out, _ = run(["library", "suite", "--count", "12", "--to", str(tmp_path / "suite"), *lib], capsys)
     assert code == 0 and "12 instances" in out and "12 certified" in out
     code, out, _ = run(["library", "check-suite", str(tmp_path / "suite")], capsys)

@@ -79,6 +79,21 @@ def test_every_entry_field_is_kept(lib):
     assert back.metadata["scores"][0]["metric"] == "success_probability"
 
 
+def test_infinite_scores_are_filed_and_survive_a_round_trip(lib, tmp_path):
+    # a time-to-solution with no success is infinite, with an open-ended interval
+    s = Score("tts", float("inf"), ci=(1e4, float("inf")), kind="lower bound", solver="sa",
+              extra={"per_sweeps": [{"tts_ci": [983.8, float("inf")]}]})
+    inst = small_certified(6, scores=[s.to_dict()])
+    r = lib.add(inst)
+    e = lib.get(r.id)
+    assert e.scores[0].value == float("inf") and e.scores[0].ci == (1e4, float("inf"))
+    (path,) = lib.export([r.id], "json", tmp_path / "out")
+    strict = json.loads(path.read_text(), parse_constant=lambda c: pytest.fail(f"non-standard JSON {c}"))
+    assert strict["metadata"]["scores"][0]["value"] == "inf"
+    again = lib.add(load_instance(path))  # the same measurement, read back from the file
+    assert not again.new and again.changes == [] and len(lib.get(r.id).scores) == 1
+
+
 def test_uncertified_entries_are_marked(lib):
     r1 = lib.add(make_instance("chimera:1", "gaussian", seed=3))
     inst = make_instance("chimera:1", "gaussian", seed=4)
