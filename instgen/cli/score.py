@@ -21,7 +21,8 @@ schedules, confidence intervals and the seeds used, e.g.
   instgen score c4.json --metric tts,gap --solvers sa,pimc,tabu --reads 128
   instgen score c4.json --metric success --perturb 0.05 --copies 8
 
-Metrics: """ + ", ".join(f"{n} ({METRICS.get(n).summary})" for n in METRICS.names()) + """.
+metrics:
+""" + "\n".join(f"  {n:<14} {METRICS.get(n).summary}" for n in METRICS.names()) + """
 
 The reference energy is the instance's certificate, else its planted state,
 else the lowest energy found in this run (then it is NOT a proven optimum and
