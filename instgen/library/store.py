@@ -199,8 +199,13 @@ class Library:
         fp = form.fingerprint
         cert = certificate_of(instance)
         scores = scores_of(instance)
-        tag_list = clean_tags(list(instance.metadata.get("tags", [])) + list(tags))
-        prov = {"tool_version": __version__, "created": schema.now(), **instance.metadata.get("provenance", {}),
+        meta_tags, meta_prov = instance.metadata.get("tags", []), instance.metadata.get("provenance", {})
+        if isinstance(meta_tags, str) or isinstance(tags, str):
+            raise InputError("tags must be a list of strings, not one string")
+        if not isinstance(meta_prov, dict) or not isinstance(provenance or {}, dict):
+            raise InputError("provenance must be a mapping of names to values")
+        tag_list = clean_tags(list(meta_tags) + list(tags))
+        prov = {"tool_version": __version__, "created": schema.now(), **meta_prov,
                 **(provenance or {})}
         if "seed" not in prov and isinstance(instance.metadata.get("seed"), int):
             prov["seed"] = instance.metadata["seed"]
@@ -374,7 +379,11 @@ class Library:
             scores, tags, seen = {}, {}, {}
             for r in con.execute(f"SELECT fingerprint, record FROM scores WHERE fingerprint IN ({sub})"
                                  " ORDER BY id", params):
-                scores.setdefault(r[0], []).append(Score.from_dict(json.loads(r[1])))
+                try:
+                    scores.setdefault(r[0], []).append(Score.from_dict(json.loads(r[1])))
+                except (ValueError, TypeError) as exc:
+                    raise LibraryError(f"the index of {self.root} is damaged: a score of entry "
+                                       f"{r[0][:SHORT_ID]} is unreadable ({exc})") from None
             for r in con.execute(f"SELECT fingerprint, tag FROM tags WHERE fingerprint IN ({sub})"
                                  " ORDER BY tag", params):
                 tags.setdefault(r[0], []).append(r[1])
@@ -385,6 +394,13 @@ class Library:
                             seen.get(r["fingerprint"], 1)) for r in rows]
 
     def _entry(self, r, scores, tags, seen) -> Entry:
+        try:
+            return self._build_entry(r, scores, tags, seen)
+        except (ValueError, TypeError, KeyError, UnicodeError) as exc:
+            raise LibraryError(f"the index of {self.root} is damaged: entry {str(r['fingerprint'])[:SHORT_ID]} "
+                               f"has unreadable fields ({exc})") from None
+
+    def _build_entry(self, r, scores, tags, seen) -> Entry:
         cert = None
         if r["cert_status"] is not None:
             cert = Certificate(energy=r["cert_energy"], state=decode_state(r["cert_state"] or ""),
@@ -404,7 +420,10 @@ class Library:
         with self._transaction(write=True) as con:
             for table in ("scores", "tags", "sightings", "entries"):
                 con.execute(f"DELETE FROM {table} WHERE fingerprint = ?", (fp,))
-        self._file(fp).unlink(missing_ok=True)
+        # the file goes under the write lock, and only if no add filed the instance again meanwhile
+        with self._transaction(write=True) as con:
+            if con.execute("SELECT 1 FROM entries WHERE fingerprint = ?", (fp,)).fetchone() is None:
+                self._file(fp).unlink(missing_ok=True)
         return fp
 
     def verify(self, tidy: bool = False) -> VerifyReport:

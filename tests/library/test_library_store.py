@@ -131,6 +131,24 @@ def test_contradicting_or_self_contradicting_certificates_are_refused(lib):
     assert lib.get(lib.list()[0].id).certificate.energy == before
 
 
+def test_bad_arguments_are_refused(lib):
+    inst = small_certified(1)
+    with pytest.raises(InputError, match="not one string"):
+        lib.add(inst, tags="abc")
+    with pytest.raises(InputError, match="non-empty"):
+        lib.add(inst, tags=[""])
+    with pytest.raises(InputError, match="malformed"):
+        lib.add(inst.replace(metadata={"scores": [{"metric": "tts"}]}))
+    assert len(lib) == 0
+
+
+def test_damaged_index_rows_are_a_library_error(lib):
+    r = lib.add(small_certified(1))
+    lib._con.execute("UPDATE entries SET provenance = '{not json' WHERE fingerprint = ?", (r.fingerprint,))
+    with pytest.raises(LibraryError, match="damaged"):
+        lib.list()
+
+
 def test_list_filters_and_sorting(lib):
     ids = {}
     for k, graph in enumerate(["chimera:1", "chimera:2", "square:3x3"]):

@@ -62,6 +62,11 @@ def test_suite_of_12_is_stratified_and_checkable(lib, tmp_path):
     summary = (out / "summary.txt").read_text()
     assert "12 instances" in summary and "12 certified" in summary and "UNCERTIFIED" not in summary
     assert verify_suite(out).ok
+    # on another machine: the folder alone, moved elsewhere, with the library gone
+    moved = shutil.copytree(out, tmp_path / "elsewhere" / "suite")
+    shutil.rmtree(out)
+    report = verify_suite(moved)
+    assert report.ok and report.checked == 12 and report.notes == []
 
 
 @pytest.mark.skipif(shutil.which("sha256sum") is None, reason="coreutils sha256sum not installed")
