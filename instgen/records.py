@@ -7,17 +7,20 @@ dict with ``to_dict()`` and back with ``from_dict()``.
 from __future__ import annotations
 
 import dataclasses
+import math
 from typing import Any
 
 import numpy as np
 
 
 def _plain(value):
-    """Make numpy values JSON-friendly."""
+    """Make numpy values JSON-friendly; infinities and NaN become None (unbounded / unknown)."""
     if isinstance(value, np.ndarray):
-        return value.tolist()
+        return _plain(value.tolist())
     if isinstance(value, np.generic):
-        return value.item()
+        value = value.item()
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
     if isinstance(value, dict):
         return {str(k): _plain(v) for k, v in value.items()}
     if isinstance(value, (list, tuple)):
