@@ -115,3 +115,29 @@ def test_refusals(lib, tmp_path):
     assert [p.name for p in busy.iterdir()] == ["keep.txt"]
     with pytest.raises(InputError, match="no manifest"):
         verify_suite(busy)
+
+
+def fake_entry(n, value, k):
+    from pathlib import Path
+
+    from instgen.library import Entry
+
+    return Entry(fingerprint=f"{n:04x}{k:060x}", graph="g", n=n, m=0, couplings=None, fields=None,
+                 has_fields=False, certificate=None, scores=[Score("tts", value)], tags=[], provenance={},
+                 construction=None, rules=None, created=None, added="", path=Path("x"), sha256="")
+
+
+def test_many_sizes_are_grouped_with_their_neighbours_and_shares_follow_availability():
+    from instgen.library import pick_stratified
+
+    entries = [fake_entry(n, float(k), k) for n in range(10, 90, 10) for k in range(5)]
+    picks, _ = pick_stratified(entries, 8, size_groups=4)
+    groups = {}
+    for p in picks:
+        groups.setdefault(p.size_group, set()).add(p.entry.n)
+    assert sorted(map(sorted, groups.values())) == [[10, 20], [30, 40], [50, 60], [70, 80]]
+    uneven = [fake_entry(8, 1.0, 0), fake_entry(32, 1.0, 0)] + [fake_entry(72, float(k), k) for k in range(10)]
+    picks, _ = pick_stratified(uneven, 6)
+    assert sorted(p.entry.n for p in picks) == [8, 32, 72, 72, 72, 72]
+    # evenly spaced quantiles of the ten n = 72 values 0..9: the middles of four equal slices
+    assert sorted(p.value for p in picks if p.entry.n == 72) == [1.0, 3.0, 6.0, 8.0]
