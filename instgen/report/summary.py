@@ -1,0 +1,68 @@
+"""The text summary printed at the end of a breeding run."""
+
+from __future__ import annotations
+
+import math
+import sys
+
+
+def _num(v, unit="") -> str:
+    if v is None:
+        return "-"
+    if isinstance(v, float) and math.isinf(v):
+        return "never reached"
+    return f"{v:.3g}{unit}"
+
+
+def score_text(s: dict) -> str:
+    """One score as a reader would say it: value, interval, and whether it is a bound."""
+    units = f" {s['units']}" if s.get("units") else ""
+    if s["kind"] == "lower bound":
+        text = f">= {_num(s['value'])}{units}"
+    elif s["kind"] == "upper bound":
+        text = f"<= {_num(s['value'])}{units}"
+    else:
+        text = f"{_num(s['value'])}{units}"
+    ci = s.get("ci")
+    if ci and all(x is not None for x in ci):
+        text += f" [{_num(ci[0])}, {_num(ci[1])}]"
+    return text
+
+
+def print_summary(summary: dict, stream=None) -> None:
+    out = stream or sys.stdout
+    run = summary["run"]
+    w = out.write
+    w(f"\nrun {run['name']} on {run['graph']} ({run['n']} spins, {run['m']} couplings, "
+      f"couplings {run['rules']['couplings']}): stopped after {summary['generations']} generations "
+      f"({summary['stopped']}), {summary['evaluations']} evaluations in {summary['elapsed']:.0f} s\n")
+    w(f"fitness: {run['metric']} on {run['sampler']}; figures below re-measured on fresh seeds "
+      f"against the certified energy\n\n")
+    winners = summary["winners"]
+    if winners:
+        solvers = run["solvers"]
+        head = f"{'#':>2}  {'file':<26} {'optimum':>10}  {'how known':<22}"
+        w(head + "".join(f"  {s + ' ' + winners[0]['scores'][0]['metric']:<30}" for s in solvers) + "\n")
+        for e in winners:
+            c = e["certificate"]
+            how = f"{c['method']} ({c['status']})"
+            line = f"{e['rank']:>2}  {e['file']:<26} {c['energy']:>10.6g}  {how:<22}"
+            first_metric = e["scores"][0]["metric"]
+            for solver in solvers:
+                sc = next((s for s in e["scores"] if s["solver"] == solver and s["metric"] == first_metric), None)
+                line += f"  {score_text(sc) if sc else '-':<30}"
+            w(line + "\n")
+    else:
+        w("no winners were confirmed.\n")
+    if summary["comparison"]:
+        w(f"\nagainst {summary['baseline']['count']} random instances of the same graph and alphabet, same run:\n")
+        for r in summary["comparison"]:
+            ratio = "-" if r["ratio"] is None else f"{r['ratio']:.3g}x"
+            w(f"  {r['metric']:<10} {r['solver']:<8} winners median {_num(r['winners_median'])}, random median "
+              f"{_num(r['baseline_median'])}  -> {ratio}\n")
+    if summary.get("library"):
+        lib = summary["library"]
+        w(f"\nfiled {lib['filed']} winners into the library {lib['path']} ({lib['new']} new)\n")
+    w(f"\nrun folder: {run['folder']}  (summary.json, log.jsonl, hall_of_fame/)\n")
+    for c in summary["cautions"]:
+        w(f"caution: {c}\n")
