@@ -10,6 +10,7 @@ from ..errors import InputError
 from ..export import FORMATS
 from ..io import load_instance
 from ..library import ENV_VAR, Library, default_location, make_suite, verify_suite
+from ..library.entry import known
 from ..library.store import INDEX_NAME, SORT_KEYS
 from ._common import add_json, positive_int, print_json
 
@@ -179,8 +180,12 @@ def _list(args):
     rows = [("ID", "GRAPH", "N", "M", "FIELDS", "OPTIMUM", col, "TAGS")]
     for e in entries:
         s = e.latest(metric, args.solver) if metric else None
-        figure = (f"{s.value:.4g}" + (f" ({s.kind})" if s.kind != "value" else "")) if s else (
-            "-" if metric else str(len(e.scores)))
+        if not metric:
+            figure = str(len(e.scores))
+        elif not known(s):
+            figure = "unknown" if s else "-"
+        else:
+            figure = f"{s.value:.4g}" + (f" ({s.kind})" if s.kind != "value" else "")
         rows.append((e.id, e.graph or "-", str(e.n), str(e.m), "yes" if e.has_fields else "no",
                      e.optimum_text, figure, ",".join(e.tags) or "-"))
     widths = [max(len(r[k]) for r in rows) for k in range(len(rows[0]))]
@@ -219,15 +224,22 @@ def _show(args):
     print("provenance    " + (json.dumps(prov, sort_keys=True, default=str) if prov else "-"))
     print(f"measurements  {len(e.scores)}")
     for s in e.scores:
-        ci = f" [{s.ci[0]:.4g}, {s.ci[1]:.4g}]" if s.ci else ""
+        ci = f" [{_num(s.ci[0])}, {_num(s.ci[1])}]" if s.ci else ""
         bound = "" if s.kind == "value" else f" ({s.kind})"
-        print(f"  {s.metric} = {s.value:.6g}{bound}{ci} {s.units}".rstrip()
+        print(f"  {s.metric} = {_num(s.value)}{bound}{ci} {s.units}".rstrip()
               + f"  solver {s.solver or '?'}, reads {s.reads}, seeds {len(s.seeds)}")
         if s.schedule:
             print(f"      schedule {json.dumps(s.schedule, sort_keys=True, default=str)}")
         for note in s.notes:
             print(f"      note: {note}")
     return 0
+
+
+def _num(x) -> str:
+    """A figure for people: unbounded interval ends and unknown values said in words."""
+    if x is None:
+        return "unbounded"
+    return "unknown" if x != x else f"{x:.6g}"
 
 
 def _rm(args):

@@ -103,16 +103,39 @@ def scores_of(inst: Instance) -> list[Score]:
     out = []
     for k, d in enumerate(raw):
         try:
-            score = Score.from_dict(d)
-            score.value = float(score.value)
-            if score.ci is not None:
-                score.ci = tuple(float(x) for x in score.ci)
+            score = score_from_record(d)
         except (TypeError, ValueError, KeyError) as exc:
             raise InputError(f"score record {k} in the instance is malformed ({exc})") from None
         if not isinstance(score.metric, str) or not score.metric:
             raise InputError(f"score record {k} names no metric")
         out.append(score)
     return out
+
+
+def _number(x):
+    return None if x is None else float(x)
+
+
+def score_from_record(d: dict) -> Score:
+    """A Score from its dict, numbers normalised.
+
+    Records write an infinite or unknown number as null; a null value comes
+    back as NaN (unknown: it matches no threshold and sorts last) and a null
+    interval end as None (unbounded).
+
+    >>> score_from_record({"metric": "tts", "value": None, "ci": [10, None]}).ci
+    (10.0, None)
+    """
+    score = Score.from_dict(d)
+    score.value = float("nan") if score.value is None else float(score.value)
+    if score.ci is not None:
+        score.ci = tuple(_number(x) for x in score.ci)
+    return score
+
+
+def known(score: Score | None) -> bool:
+    """True for a measurement with a value (not missing, not NaN)."""
+    return score is not None and not np.isnan(score.value)
 
 
 def clean_tags(tags) -> list[str]:
@@ -180,11 +203,13 @@ class Entry:
         return f"{c.energy:.10g} (UNCERTIFIED: best found, not proven)"
 
     def latest(self, metric: str, solver: str | None = None) -> Score | None:
-        """The most recently filed measurement of ``metric`` (by ``solver``)."""
-        for score in reversed(self.scores):
-            if score.metric == metric and (solver is None or score.solver == solver):
-                return score
-        return None
+        """The most recently filed measurement of ``metric`` (by ``solver``).
+
+        One with a value is preferred over a later one whose value is unknown.
+        """
+        found = [s for s in self.scores if s.metric == metric and (solver is None or s.solver == solver)]
+        with_value = [s for s in found if known(s)]
+        return (with_value or found or [None])[-1]
 
     def instance(self, check: bool = True) -> Instance:
         """The stored instance, with the library's certificate, scores, tags and provenance.

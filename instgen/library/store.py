@@ -37,7 +37,8 @@ from ..io import atomic_write, dumps_instance
 from ..records import Certificate, Score
 from . import schema
 from .entry import (CERTIFIED, SHORT_ID, Entry, certificate_of, clean_tags, decode_state,
-                    encode_state, energy_tolerance, json_safe, score_key, scores_of)
+                    encode_state, energy_tolerance, json_safe, known, score_from_record, score_key,
+                    scores_of)
 from .fingerprint import FINGERPRINT_VERSION, canonical_form, carry_state
 
 INDEX_NAME = "index.sqlite"
@@ -325,9 +326,10 @@ class Library:
 
         ``graph`` matches a spec exactly, or a family (``"chimera"``) when it
         has no ``:``.  ``certified=True`` keeps planted/proven entries only.
-        ``metric`` with ``min_value``/``max_value`` compares the latest
-        measurement of that metric (by ``solver`` if given); entries without
-        one are left out.  ``sort`` is one of :data:`SORT_KEYS` (``value``
+        ``metric`` keeps entries measured on that metric (by ``solver`` if
+        given); with ``min_value``/``max_value`` it compares the latest
+        measurement that has a value (see :meth:`Entry.latest`), and entries
+        without one are left out.  ``sort`` is one of :data:`SORT_KEYS` (``value``
         sorts by the metric); entries lacking the sort key come last.
         """
         if sort not in SORT_KEYS:
@@ -357,7 +359,9 @@ class Library:
         if metric is not None:
             def keep(e):
                 s = e.latest(metric, solver)
-                return s is not None and (min_value is None or s.value >= min_value) and (
+                if min_value is None and max_value is None:
+                    return s is not None
+                return known(s) and (min_value is None or s.value >= min_value) and (
                     max_value is None or s.value <= max_value)
             entries = [e for e in entries if keep(e)]
         keys = {
@@ -365,7 +369,7 @@ class Library:
             "graph": lambda e: (e.graph, e.n, e.fingerprint), "n": lambda e: (e.n, e.fingerprint),
             "m": lambda e: (e.m, e.fingerprint),
             "energy": lambda e: None if e.certificate is None else e.certificate.energy,
-            "value": lambda e: None if e.latest(metric, solver) is None else e.latest(metric, solver).value,
+            "value": lambda e: e.latest(metric, solver).value if known(e.latest(metric, solver)) else None,
         }
         key = keys[sort]
         present = sorted((e for e in entries if key(e) is not None), key=key, reverse=reverse)
@@ -380,7 +384,7 @@ class Library:
             for r in con.execute(f"SELECT fingerprint, record FROM scores WHERE fingerprint IN ({sub})"
                                  " ORDER BY id", params):
                 try:
-                    scores.setdefault(r[0], []).append(Score.from_dict(json.loads(r[1])))
+                    scores.setdefault(r[0], []).append(score_from_record(json.loads(r[1])))
                 except (ValueError, TypeError) as exc:
                     raise LibraryError(f"the index of {self.root} is damaged: a score of entry "
                                        f"{r[0][:SHORT_ID]} is unreadable ({exc})") from None

@@ -31,7 +31,7 @@ from ..errors import FormatError, InputError
 from ..export import FORMATS, check_export, export_instance
 from ..io import atomic_write, load_instance
 from . import schema
-from .entry import Entry, energy_tolerance, json_safe
+from .entry import Entry, energy_tolerance, json_safe, known
 from .fingerprint import fingerprint
 from .store import Library, VerifyReport
 
@@ -108,9 +108,10 @@ def pick_stratified(entries: list[Entry], count: int, metric: str | None = None,
         seen = Counter(s.metric for e in entries for s in e.scores if solver in (None, s.solver))
         metric = seen.most_common(1)[0][0] if seen else None
     if metric is not None:
-        have = [e for e in entries if e.latest(metric, solver) is not None]
+        have = [e for e in entries if known(e.latest(metric, solver))]
         if len(have) < len(entries):
-            notes.append(f"{len(entries) - len(have)} matching entries have no {metric} measurement and were left out")
+            notes.append(f"{len(entries) - len(have)} matching entries have no {metric} measurement "
+                         "with a value and were left out")
         entries = have
     elif entries:
         notes.append("no hardness measurements: picked by size only")

@@ -79,19 +79,23 @@ def test_every_entry_field_is_kept(lib):
     assert back.metadata["scores"][0]["metric"] == "success_probability"
 
 
-def test_infinite_scores_are_filed_and_survive_a_round_trip(lib, tmp_path):
-    # a time-to-solution with no success is infinite, with an open-ended interval
-    s = Score("tts", float("inf"), ci=(1e4, float("inf")), kind="lower bound", solver="sa",
-              extra={"per_sweeps": [{"tts_ci": [983.8, float("inf")]}]})
-    inst = small_certified(6, scores=[s.to_dict()])
+def test_unbounded_scores_are_filed_and_survive_a_round_trip(lib, tmp_path):
+    # a time-to-solution with no success: a lower bound whose interval is open-ended
+    bound = Score("tts", 983.8, ci=(983.8, float("inf")), kind="lower bound", solver="sa",
+                  extra={"per_sweeps": [{"tts_ci": [983.8, float("inf")]}]})
+    unknown = Score("tts", float("inf"), solver="pt")  # an infinite value is written as null
+    inst = small_certified(6, scores=[bound.to_dict(), unknown.to_dict()])
     r = lib.add(inst)
     e = lib.get(r.id)
-    assert e.scores[0].value == float("inf") and e.scores[0].ci == (1e4, float("inf"))
+    assert e.scores[0].value == 983.8 and e.scores[0].ci == (983.8, None)
+    assert np.isnan(e.latest("tts", "pt").value)
+    assert lib.list(metric="tts", solver="pt", min_value=0) == []  # unknown matches no threshold
+    assert [x.id for x in lib.list(metric="tts", solver="sa", min_value=900)] == [r.id]
     (path,) = lib.export([r.id], "json", tmp_path / "out")
     strict = json.loads(path.read_text(), parse_constant=lambda c: pytest.fail(f"non-standard JSON {c}"))
-    assert strict["metadata"]["scores"][0]["value"] == "inf"
-    again = lib.add(load_instance(path))  # the same measurement, read back from the file
-    assert not again.new and again.changes == [] and len(lib.get(r.id).scores) == 1
+    assert strict["metadata"]["scores"][0]["ci"] == [983.8, None]
+    again = lib.add(load_instance(path))  # the same measurements, read back from the file
+    assert not again.new and again.changes == [] and len(lib.get(r.id).scores) == 2
 
 
 def test_uncertified_entries_are_marked(lib):
