@@ -212,13 +212,14 @@ class Library:
             prov["seed"] = instance.metadata["seed"]
         text = dumps_instance(instance.replace(metadata=json_safe(instance.metadata)), provenance=json_safe(prov))
         digest = hashlib.sha256(text.encode()).hexdigest()
-        prov_json = json.dumps(prov, sort_keys=True, default=str)
+        prov_json = json.dumps(json_safe(prov), sort_keys=True, default=str)
         now = schema.now()
         with self._transaction(write=True) as con:
             row = con.execute("SELECT * FROM entries WHERE fingerprint = ?", (fp,)).fetchone()
             if row is None:
                 atomic_write(self._file(fp), text)
-                rules = instance.metadata.get("rules") or {}
+                rules = instance.metadata.get("rules")
+                rules = json_safe(rules) if isinstance(rules, dict) else {}
                 con.execute(
                     "INSERT INTO entries (fingerprint, file, sha256, graph, n, m, couplings, fields, has_fields,"
                     " rules, construction, provenance, created, added, updated)"
