@@ -42,7 +42,8 @@ from ..preset import preset_hash, to_toml
 from ..seeds import derive_seed
 from .checkpoint import load_checkpoint, save_checkpoint
 from .executors import SerialExecutor, make_executor
-from .genome import FreeGenome, GaugeCanon, genome_from_dict
+from ..library.fingerprint import fingerprint
+from .genome import FreeGenome, genome_from_dict
 from .operators import Variation, Variator, default_operators
 
 #: Keys that may change between a run and its resume (they decide when to stop).
@@ -138,7 +139,6 @@ class Breeder:
         self.var = Variation(self.rules, self.topology.n, self.topology.edges, s["mutation_rate"],
                              extra={"planting": cfg["planting"], "topology": self.topology})
         self.variator = Variator(weights, s["crossover_rate"], self.var)
-        self.canon = GaugeCanon(self.topology.n, self.topology.edges)
         self.executor = executor or make_executor(s["workers"])
         self.progress = progress
         self.seed = cfg["run"]["seed"]
@@ -185,7 +185,8 @@ class Breeder:
 
     def _individual(self, genome, parents=()) -> Individual:
         J, h, _, _ = genome.couplings()
-        return Individual(genome, genome.key(), self.canon.key(J, h), self.generation, list(parents))
+        canon = fingerprint(self.ctx.instance(J, h))  # the library's gauge- and order-invariant identity
+        return Individual(genome, genome.key(), canon, self.generation, list(parents))
 
     # ---------------------------------------------------------- measuring
     def _task(self, ind_genome, seed: int, reads: int) -> dict:
