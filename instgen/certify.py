@@ -164,7 +164,8 @@ def _tree(instance, ctx, plans=None) -> Certificate:
     plans = plans or _tree_plans(instance, ctx)
     worst = max((p for _, _, p in plans if p), key=lambda p: p["width"], default=None)
     if worst is not None and not worst["feasible"]:
-        raise ResourceError(f"tree decomposition needs width {worst['width']}: about {worst['bytes'] / 1e9:.3g} GB "
+        above = ">= " if worst["order"] is None else ""
+        raise ResourceError(f"tree decomposition needs width {above}{worst['width']}: about {worst['bytes'] / 1e9:.3g} GB "
                             f"and {exact.duration(worst['seconds'])}; the limits are width {exact.TREE_MAX_WIDTH} "
                             f"and {ctx['memory'] / 1e9:.3g} GB")
     est = sum(p["seconds"] for _, _, p in plans if p)

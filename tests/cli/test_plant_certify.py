@@ -1,0 +1,84 @@
+"""`instgen plant` and `instgen certify` end to end; energies checked with dimod's ExactSolver."""
+
+import json
+
+import dimod
+import pytest
+
+from instgen.cli import main
+from instgen.io import load_instance
+
+
+def run(argv, capsys):
+    try:
+        code = main([str(a) for a in argv])
+    except SystemExit as exc:  # argparse's own refusals
+        code = exc.code
+    out = capsys.readouterr()
+    return code, out.out, out.err
+
+
+@pytest.mark.parametrize("argv", [
+    ["chimera:2", "--method", "loops", "--density", "0.4", "--cap", "2", "--min-length", "6"],
+    ["complete:10", "--method", "wishart", "--alpha", "0.7", "--disorder", "binary"],
+    ["square:4,periodic", "--method", "tiles", "--mix", "0.2,0.5,0.3"],
+])
+def test_plant_writes_a_certified_instance(tmp_path, capsys, argv):
+    f = tmp_path / "p.json"
+    code, out, err = run(["plant", *argv, "--seed", 3, "-o", f], capsys)
+    assert code == 0 and "proof checked" in out, err
+    inst = load_instance(f)
+    cert = inst.metadata["certificate"]
+    assert cert["status"] == "planted" and inst.planted is not None
+    if inst.n <= 16:  # dimod's ExactSolver confirms the planted energy is the ground energy
+        assert dimod.ExactSolver().sample(inst.to_bqm()).first.energy == pytest.approx(cert["energy"], abs=1e-9)
+    code, out, _ = run(["certify", f], capsys)
+    assert code == 0 and "status         planted" in out
+
+
+def test_certify_proves_a_free_instance_and_writes_it(tmp_path, capsys):
+    f = tmp_path / "c.json"
+    assert run(["make", "chimera:1,2", "--couplings", "pm1", "--fields", "int:1", "--seed", 2, "-o", f], capsys)[0] == 0
+    code, out, _ = run(["certify", f, "--json"], capsys)
+    d = json.loads(out)
+    e_ref = dimod.ExactSolver().sample(load_instance(f).to_bqm()).first.energy  # reference
+    assert code == 0 and d["status"] == "proven" and d["energy"] == pytest.approx(e_ref) and not d["written"]
+    assert "certificate" not in load_instance(f).metadata
+    code, out, _ = run(["certify", f, "--method", "tree", "--write"], capsys)
+    assert code == 0 and "certificate written" in out and "NOT proven" not in out
+    assert load_instance(f).metadata["certificate"]["energy"] == pytest.approx(e_ref)
+
+
+def test_unverified_result_says_not_proven(tmp_path, capsys):
+    f = tmp_path / "u.json"
+    run(["make", "chimera:2", "--seed", 1, "-o", f], capsys)
+    code, out, _ = run(["certify", f, "--method", "anneal", "--time-limit", 1, "--seed", 1, "--write"], capsys)
+    assert code == 0 and "status         unverified" in out
+    assert any(line.startswith("NOT proven") for line in out.splitlines())
+    assert load_instance(f).metadata["certificate"]["details"]["warning"].startswith("NOT proven")
+
+
+@pytest.mark.parametrize("argv,needle", [
+    (["plant", "square:8", "--method", "tiles", "--density", "0.3", "-o", "{tmp}/y.json"], "--density"),
+    (["plant", "chimera:2", "--method", "wishart", "-o", "{tmp}/y.json"], "complete graph"),
+    (["plant", "chimera:2", "--method", "nope", "-o", "{tmp}/y.json"], "unknown planted family"),
+    (["plant", "chimera:1", "--density", "9", "--cap", "1", "-o", "{tmp}/y.json"], "cap"),
+    (["certify", "{tmp}/missing.json"], "no such file"),
+    (["certify", "{tmp}/x.json", "--method", "exact"], "2^72"),
+    (["certify", "{tmp}/x.json", "--time-limit", "-1"], "time_limit"),
+    (["certify", "{tmp}/x.json", "--method", "guess"], "invalid choice"),
+])
+def test_bad_input_is_one_line_and_the_file_is_untouched(tmp_path, capsys, argv, needle):
+    x = tmp_path / "x.json"
+    run(["make", "chimera:3", "--seed", 1, "-o", x], capsys)
+    before = x.read_bytes()
+    code, out, err = run([a.replace("{tmp}", str(tmp_path)) for a in argv], capsys)
+    assert code == 2 and err.count("\n") == 1 and needle in err and "Traceback" not in err
+    assert x.read_bytes() == before and not (tmp_path / "y.json").exists()
+
+
+def test_plant_list(capsys):
+    code, out, _ = run(["plant", "--list", "--json"], capsys)
+    names = {r["name"]: r for r in json.loads(out)}
+    assert code == 0 and set(names) >= {"loops", "wishart", "tiles"}
+    assert "--density" in names["loops"]["options"] and "--mix" in names["tiles"]["options"]
