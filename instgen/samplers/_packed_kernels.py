@@ -69,11 +69,36 @@ def _next(s0, s1):
 
 
 @nb.njit(cache=True)
+def _count_weighted(b, bi, i, lo, hi, indices, cp, wc, hp, hwc, planes, pl):
+    """Bit planes of K = sum of |J| (and |h|) over the unsatisfied terms of spin i (any weights)."""
+    for q in range(MAX_PLANES):
+        pl[q] = _ZERO
+    for k in range(lo, hi + _ONE):
+        if k < hi:
+            x = bi ^ b[indices[k]] ^ cp[k]
+            a = wc[k]
+        else:
+            x = bi ^ hp[i]
+            a = hwc[i]
+        q = 0
+        while a:
+            if a & 1:
+                carry = x
+                for tq in range(q, planes):
+                    y = pl[tq] & carry
+                    pl[tq] ^= carry
+                    carry = y
+            a >>= 1
+            q += 1
+
+
+@nb.njit(cache=True)
 def anneal_packed(indptr, indices, cpos, wt, hpos, hw, W, planes, unit, betas, reads, seeds,
                   random_order, shared, out):
     """Anneal ``reads`` replicas per candidate, 64 per machine word.
 
-    indptr (n+1,), indices (nnz,) int64: shared CSR graph.
+    indptr (n+1,) uint64, indices (nnz,) uint32: shared CSR graph (unsigned, so
+    array lookups need no negative-index fix-ups).
     cpos (C, nnz) uint64: all ones where J > 0.  wt (C, nnz) int64: |J|.
     hpos (C, n) uint64: all ones where h > 0.  hw (C, n) int64: |h|.  W (C, n): sums.
     planes: bit planes needed (<= MAX_PLANES; <= UNIT_PLANES when ``unit``).
@@ -102,6 +127,11 @@ def anneal_packed(indptr, indices, cpos, wt, hpos, hw, W, planes, unit, betas, r
     nn = _U(n)
     thresh = (_ONE << _S32) % nn
     for c in range(C):
+        cp = cpos[c]
+        wc = wt[c]
+        hp = hpos[c]
+        hwc = hw[c]
+        Wc = W[c]
         for word in range(words):
             s0, s1 = _word_state(seeds[c], word)
             for i in range(n):
@@ -115,79 +145,67 @@ def anneal_packed(indptr, indices, cpos, wt, hpos, hw, W, planes, unit, betas, r
                             prod = (r >> _S32) * nn
                             if (prod & _LOW32) >= thresh:
                                 break
-                        i = np.int64(prod >> _S32)
+                        i = prod >> _S32
                     else:
-                        i = step
+                        i = _U(step)
                     bi = b[i]
-                    p0 = p1 = p2 = p3 = p4 = p5 = p6 = p7 = _ZERO
+                    lo, hi = indptr[i], indptr[i + _ONE]
+                    p0 = p1 = p2 = p3 = p4 = _ZERO
                     if unit:
-                        for k in range(indptr[i], indptr[i + 1]):
-                            x = bi ^ b[indices[k]] ^ cpos[c, k]
-                            y = p0 & x
-                            p0 ^= x
-                            x = p1 & y
-                            p1 ^= y
-                            if planes > 2:
+                        # add one unsatisfied-term bit per coupling (and field) to the planes
+                        if planes <= 3:
+                            for k in range(lo, hi):
+                                x = bi ^ b[indices[k]] ^ cp[k]
+                                y = p0 & x
+                                p0 ^= x
+                                p2 ^= p1 & y
+                                p1 ^= y
+                        elif planes == 4:
+                            for k in range(lo, hi):
+                                x = bi ^ b[indices[k]] ^ cp[k]
+                                y = p0 & x
+                                p0 ^= x
+                                x = p1 & y
+                                p1 ^= y
+                                p3 ^= p2 & x
+                                p2 ^= x
+                        else:
+                            for k in range(lo, hi):
+                                x = bi ^ b[indices[k]] ^ cp[k]
+                                y = p0 & x
+                                p0 ^= x
+                                x = p1 & y
+                                p1 ^= y
                                 y = p2 & x
                                 p2 ^= x
-                                if planes > 3:
-                                    x = p3 & y
-                                    p3 ^= y
-                                    if planes > 4:
-                                        p4 ^= x
-                        if hw[c, i]:
-                            x = bi ^ hpos[c, i]
+                                p4 ^= p3 & y
+                                p3 ^= y
+                        if hwc[i]:
+                            x = bi ^ hp[i]
                             y = p0 & x
                             p0 ^= x
                             x = p1 & y
                             p1 ^= y
                             y = p2 & x
                             p2 ^= x
-                            x = p3 & y
+                            p4 ^= p3 & y
                             p3 ^= y
-                            p4 ^= x
+                        pl[0], pl[1], pl[2], pl[3], pl[4] = p0, p1, p2, p3, p4
                     else:
-                        for q in range(MAX_PLANES):
-                            pl[q] = _ZERO
-                        for k in range(indptr[i], indptr[i + 1] + 1):
-                            if k < indptr[i + 1]:
-                                x = bi ^ b[indices[k]] ^ cpos[c, k]
-                                a = wt[c, k]
-                            else:
-                                x = bi ^ hpos[c, i]
-                                a = hw[c, i]
-                            q = 0
-                            while a:
-                                if a & 1:
-                                    carry = x
-                                    for tq in range(q, planes):
-                                        y = pl[tq] & carry
-                                        pl[tq] ^= carry
-                                        carry = y
-                                a >>= 1
-                                q += 1
-                        p0, p1, p2, p3 = pl[0], pl[1], pl[2], pl[3]
-                        p4, p5, p6, p7 = pl[4], pl[5], pl[6], pl[7]
-                    wi = W[c, i]
+                        _count_weighted(b, bi, i, lo, hi, indices, cp, wc, hp, hwc, planes, pl)
+                    wi = Wc[i]
                     h_ = (wi + 1) >> 1
                     # borrow out of K - ceil(W/2): set where dE > 0 (the flip needs luck)
                     bo = _ZERO
-                    bo = (~p0 | bo) if h_ & 1 else (~p0 & bo)
-                    bo = (~p1 | bo) if h_ & 2 else (~p1 & bo)
-                    bo = (~p2 | bo) if h_ & 4 else (~p2 & bo)
-                    bo = (~p3 | bo) if h_ & 8 else (~p3 & bo)
-                    bo = (~p4 | bo) if h_ & 16 else (~p4 & bo)
-                    bo = (~p5 | bo) if h_ & 32 else (~p5 & bo)
-                    bo = (~p6 | bo) if h_ & 64 else (~p6 & bo)
-                    bo = (~p7 | bo) if h_ & 128 else (~p7 & bo)
+                    for q in range(planes):
+                        bo = (~pl[q] | bo) if (h_ >> q) & 1 else (~pl[q] & bo)
                     acc = ~bo
                     if bo:
                         anyp = _ZERO
                         for kk in range(h_):
-                            m = ((p0 if kk & 1 else ~p0) & (p1 if kk & 2 else ~p1)
-                                 & (p2 if kk & 4 else ~p2) & (p3 if kk & 8 else ~p3)
-                                 & (p4 if kk & 16 else ~p4) & (p5 if kk & 32 else ~p5)
-                                 & (p6 if kk & 64 else ~p6) & (p7 if kk & 128 else ~p7))
+                            m = ONES
+                            for q in range(planes):
+                                m &= pl[q] if (kk >> q) & 1 else ~pl[q]
                             mk[kk] = m
                             pk[kk] = p64[t, wi - 2 * kk]
                             anyp |= pk[kk]

@@ -62,7 +62,8 @@ class Layout:
     """A graph laid out for the kernels: CSR rows with neighbours sorted by index.
 
     ``perm[k]`` is the edge behind CSR slot k, so ``J[perm]`` are the CSR weights
-    (the order :attr:`Instance.adjacency` uses).
+    (the order :attr:`Instance.adjacency` uses).  ``uindptr`` and ``uindices`` are
+    unsigned copies for kernels that index with them.
     """
 
     n: int
@@ -72,6 +73,8 @@ class Layout:
     perm: np.ndarray
     ei: np.ndarray
     ej: np.ndarray
+    uindptr: np.ndarray
+    uindices: np.ndarray
 
 
 def layout(instance: Instance) -> Layout:
@@ -89,8 +92,9 @@ def layout(instance: Instance) -> Layout:
     order = np.lexsort((cols, rows))
     indptr = np.zeros(instance.n + 1, dtype=np.int64)
     np.cumsum(np.bincount(rows, minlength=instance.n), out=indptr[1:])
-    lay = Layout(instance.n, instance.edges.copy(), indptr, cols[order].copy(), eid[order].copy(),
-                 e[:, 0].copy(), e[:, 1].copy())
+    indices = cols[order].copy()
+    lay = Layout(instance.n, instance.edges.copy(), indptr, indices, eid[order].copy(),
+                 e[:, 0].copy(), e[:, 1].copy(), indptr.astype(np.uint64), indices.astype(np.uint32))
     _LAYOUTS[key] = lay
     if len(_LAYOUTS) > _LAYOUT_CACHE_SIZE:
         _LAYOUTS.popitem(last=False)

@@ -168,7 +168,7 @@ class PackedAnnealing(Sampler):
                              f"got {options['randomness']!r}")
         arrs = packed_arrays(lay, J, h)
         out = np.empty((J.shape[0], reads, lay.n), dtype=np.int8)
-        _pk.anneal_packed(lay.indptr, lay.indices, arrs["cpos"], arrs["wt"], arrs["hpos"], arrs["hw"],
+        _pk.anneal_packed(lay.uindptr, lay.uindices, arrs["cpos"], arrs["wt"], arrs["hpos"], arrs["hw"],
                           arrs["W"], arrs["planes"], arrs["unit"], betas_of(schedule), reads,
                           np.asarray(seeds, dtype=np.int64), options["order"] == "random",
                           options["randomness"] == "shared", out)
