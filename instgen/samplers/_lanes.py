@@ -223,15 +223,12 @@ def anneal_random_order(indptr, indices, weights, fields, betas, reads, seeds, s
                     i = np.int64(prod >> _S32)
                     de = -2.0 * s[i] * f[i]
                     if de > 0.0:
+                        y = beta * de
+                        if y >= X_MAX:  # acceptance below e^-40: skip without a draw
+                            continue
                         if step > 0:
-                            m = np.int64(de * 0.5 * inv_step + 0.5)
-                            if m > top:
-                                continue
-                            p = table[m]
+                            p = table[min(np.int64(de * 0.5 * inv_step + 0.5), top)]
                         else:
-                            y = beta * de
-                            if y >= X_MAX:
-                                continue
                             p = math.exp(-y)
                         a, b, x = _step(a, b)
                         if _uniform(x) >= p:
