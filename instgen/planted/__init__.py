@@ -12,7 +12,9 @@ Families (``instgen plant --help`` lists them with their knobs):
 * ``wishart``: the Wishart planted ensemble on complete graphs (Hamze et al.,
   PRE 101, 052102 (2020));
 * ``tiles``: edge-disjoint frustrated tiles on square and cubic lattices (after
-  Perera et al., PRE 101, 023316 (2020) and Hamze et al., PRE 97, 043303 (2018)).
+  Perera et al., PRE 101, 023316 (2020) and Hamze et al., PRE 97, 043303 (2018));
+* ``terms``: sums of frustrated loops and small frustrated patches (cells,
+  tiles, cliques, balls), the certificate-preserving genome of breeding.
 
 Each family module defines ``FAMILY``, a :class:`PlantedFamily` with its build
 function, its proof checker and a one-line description; the :data:`PLANTED`
@@ -39,6 +41,7 @@ PLANTED = Registry("planted family")
 PLANTED.register("loops", "instgen.planted.loops:FAMILY")
 PLANTED.register("wishart", "instgen.planted.wishart:FAMILY")
 PLANTED.register("tiles", "instgen.planted.tiles:FAMILY")
+PLANTED.register("terms", "instgen.planted.terms:FAMILY")
 
 
 @dataclasses.dataclass(frozen=True)

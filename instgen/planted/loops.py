@@ -160,7 +160,7 @@ def random_loop(graph, rng=None, min_length: int = 4, max_length: int | None = N
     Examples
     --------
     >>> loop = random_loop("square:4", rng=3, min_length=4)
-    >>> loop.length >= 4, loop.values().sum() == -(loop.length - 2)
+    >>> loop.length >= 4, float(loop.values().sum()) == -(loop.length - 2)
     (True, True)
     """
     g = LoopGraph.of(graph)

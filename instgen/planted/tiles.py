@@ -155,7 +155,7 @@ def plant_tiles(graph, mix=(1 / 3, 1 / 3, 1 / 3), seed=None):
     Examples
     --------
     >>> inst = plant_tiles("square:6,periodic", mix=(1, 0, 0), seed=3)
-    >>> inst.energy(inst.planted) == -2 * 9   # nine tiles at -2 each
+    >>> inst.energy(inst.planted) == -2 * 18   # 18 checkerboard plaquettes at -2 each
     True
     """
     from ..instance import Instance, random_gauge

@@ -1,0 +1,472 @@
+"""Planted sums of local terms: frustrated loops plus small frustrated patches.
+
+Every term is a small Ising problem on a few edges of the graph, written in the
+planted gauge (planted state all +1), that has the all +1 state among its own
+ground states.  Its minimum is therefore its value at all +1, and for the sum
+
+    E(s) = sum_t E_t(s) >= sum_t min E_t = sum_t E_t(+1) = E(planted)
+
+for every state s: the planted state is a ground state and the planted energy
+is a proof, whatever terms are added, removed or moved.  Two kinds of term:
+
+* **loops** (:class:`~instgen.planted.loops.Loop`): a simple cycle with one
+  antiferromagnetic edge, minimum -w (L - 2) (Hen et al., PRA 92, 042325 (2015));
+* **patches** (:class:`Patch`): couplings on the edges among at most
+  :data:`MAX_PATCH_SPINS` spins, drawn at random and then gauged by one of
+  their own ground states, so all +1 is a ground state of the patch; the
+  proof is an enumeration of the patch's 2^k states.  A patch lies on a
+  *site* of one shape:
+
+  ``cell``    a unit cell of a Chimera graph (K_{T,T}, "Chimera-like cells");
+  ``tile``    a plaquette of a square lattice or a unit cube of a cubic one
+              (the tiles of Perera et al. 2020 / Hamze et al. 2018);
+  ``clique``  a triangle or a 4-clique, on graphs that have them;
+  ``ball``    the spins nearest a centre spin (breadth first), on any graph.
+
+A cap R on the accumulated |J| of every edge (the coupling range) makes the
+construction range-limited (King et al., arXiv:1502.02098): a term that would
+push an edge past R is not added.
+
+>>> inst = plant_terms("chimera:2", density=0.3, seed=1, kinds={"loop": 1, "cell": 1}, cap=3)
+>>> verify(inst)["bound"] == inst.energy(inst.planted)
+True
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import functools
+import itertools
+
+import numpy as np
+
+from ..errors import CertificationError, FormatError, InputError
+from ..seeds import as_generator
+from . import PlantedFamily, construction_of, planted_gauge_couplings
+from .loops import Loop, LoopGraph, check_loop, fits, random_loop
+from .tiles import ground_state_ok
+
+#: Largest patch, in spins (its proof enumerates 2^k states).
+MAX_PATCH_SPINS = 16
+SHAPES = ("cell", "tile", "clique", "ball")
+KINDS = ("loop",) + SHAPES
+_TOL = 1e-9
+
+
+@dataclasses.dataclass(frozen=True, eq=False)
+class Patch:
+    """A small frustrated term in the planted gauge.
+
+    ``edges`` are edge indices of the graph, ``values`` their couplings with
+    all +1 among the patch's ground states; ``spins`` are the spins the edges
+    touch, ``shape`` names the kind of site it lies on.
+
+    >>> p = Patch("tile", (0, 1, 2, 3), (0, 1, 2, 3), (1.0, -1.0, -1.0, -1.0))
+    >>> p.bound, p.values().tolist()
+    (-2.0, [1.0, -1.0, -1.0, -1.0])
+    """
+
+    shape: str
+    spins: tuple
+    edges: tuple
+    vals: tuple
+
+    def __post_init__(self):
+        object.__setattr__(self, "spins", tuple(int(x) for x in self.spins))
+        object.__setattr__(self, "edges", tuple(int(x) for x in self.edges))
+        object.__setattr__(self, "vals", tuple(float(x) for x in self.vals))
+
+    @property
+    def bound(self) -> float:
+        """The patch's ground-state energy: its energy at all +1."""
+        return float(sum(self.vals))
+
+    def values(self) -> np.ndarray:
+        """Couplings of ``edges`` in the planted gauge."""
+        return np.asarray(self.vals, dtype=np.float64)
+
+    def to_list(self) -> list:
+        """``[shape, spins, edges, values]``, JSON-friendly."""
+        return [self.shape, list(self.spins), list(self.edges), list(self.vals)]
+
+    @classmethod
+    def from_list(cls, item) -> Patch:
+        try:
+            shape, spins, edges, vals = item
+            if shape not in SHAPES or len(edges) != len(vals):
+                raise ValueError
+            return cls(shape, spins, edges, vals)
+        except (TypeError, ValueError):
+            raise FormatError(f"a patch must be [shape, spins, edges, values] with a shape in {SHAPES}, "
+                              f"got {str(item)[:80]}") from None
+
+
+# ----------------------------------------------------------------------- sites
+@dataclasses.dataclass(frozen=True, eq=False)
+class Sites:
+    """Where patches of one shape may lie on one graph.
+
+    ``spins[k]`` and ``edges[k]`` are site k's spins and the edge indices among
+    them; ``at[v]`` lists the sites holding spin v.  Balls have no fixed list:
+    :meth:`ball` grows one on demand.
+    """
+
+    shape: str
+    spins: list
+    edges: list
+    at: list
+
+    @classmethod
+    def of(cls, topology, shape: str, size: int = 8) -> Sites:
+        """The sites of ``shape`` on ``topology`` (InputError when the graph has none)."""
+        if shape not in SHAPES:
+            raise InputError(f"unknown patch shape {shape!r}; choose from: {', '.join(SHAPES)}")
+        groups = _GROUPS[shape](topology) if shape != "ball" else []
+        eidx = {(int(i), int(j)): k for k, (i, j) in enumerate(topology.edges.tolist())}
+        spins, edges = [], []
+        for g in groups:
+            g = tuple(sorted(set(int(v) for v in g)))
+            ids = tuple(eidx[p] for p in itertools.combinations(g, 2) if p in eidx)
+            if len(g) >= 2 and ids:
+                spins.append(g)
+                edges.append(ids)
+        if shape != "ball" and not spins:
+            raise InputError(f"the graph {topology.spec} has no {shape} sites; "
+                             f"patch shapes that fit it: {', '.join(applicable_shapes(topology)) or 'none'}")
+        at = [[] for _ in range(topology.n)]
+        for k, g in enumerate(spins):
+            for v in g:
+                at[v].append(k)
+        site = cls(shape, spins, edges, at)
+        object.__setattr__(site, "_size", int(size))
+        object.__setattr__(site, "_topology", topology)
+        return site
+
+    def pick(self, rng, near: int | None = None) -> tuple[tuple, tuple]:
+        """A random site (one holding spin ``near`` when given and there is one)."""
+        if self.shape == "ball":
+            n = self._topology.n
+            return self.ball(int(rng.integers(n)) if near is None else int(near), rng)
+        choices = self.at[near] if near is not None and self.at[near] else range(len(self.spins))
+        k = int(choices[int(rng.integers(len(choices)))])
+        return self.spins[k], self.edges[k]
+
+    def ball(self, centre: int, rng) -> tuple[tuple, tuple]:
+        """About ``size`` spins nearest ``centre`` (ties broken at random) and the edges among them."""
+        adj = _adjacency(self._topology)
+        seen, frontier = [centre], [centre]
+        inside = {centre}
+        while frontier and len(seen) < self._size:
+            nxt = []
+            for v in frontier:
+                for u in rng.permutation(adj[v]).tolist():
+                    if u not in inside and len(seen) < self._size:
+                        inside.add(u)
+                        seen.append(u)
+                        nxt.append(u)
+            frontier = nxt
+        g = tuple(sorted(seen))
+        eidx = _edge_index(self._topology)
+        ids = tuple(eidx[p] for p in itertools.combinations(g, 2) if p in eidx)
+        return g, ids
+
+
+def _edge_index(topology) -> dict:
+    cache = getattr(topology, "_edge_index_cache", None)
+    if cache is None:
+        cache = {(int(i), int(j)): k for k, (i, j) in enumerate(topology.edges.tolist())}
+        object.__setattr__(topology, "_edge_index_cache", cache)
+    return cache
+
+
+def _adjacency(topology) -> list:
+    cache = getattr(topology, "_adjacency_cache", None)
+    if cache is None:
+        cache = [[] for _ in range(topology.n)]
+        for i, j in topology.edges.tolist():
+            cache[i].append(j)
+            cache[j].append(i)
+        object.__setattr__(topology, "_adjacency_cache", cache)
+    return cache
+
+
+def _cells(topology):
+    if topology.family != "chimera":
+        return []
+    args = topology.params.get("args", [])
+    t = int(args[2]) if len(args) > 2 else 4
+    groups: dict = {}
+    for k, label in enumerate(topology.labels):
+        groups.setdefault(int(label) // (2 * t), []).append(k)
+    return list(groups.values())
+
+
+def _tiles(topology):
+    if topology.family not in ("square", "cubic") or topology.coords is None:
+        return []
+    coords = np.asarray(topology.coords, dtype=np.int64)
+    shape = coords.max(axis=0) + 1
+    periodic = "periodic" in topology.params.get("args", [])
+    index = {tuple(c): k for k, c in enumerate(coords.tolist())}
+    corners = list(itertools.product((0, 1), repeat=coords.shape[1]))
+    out = []
+    for c in coords.tolist():
+        pts = [tuple((c[d] + o[d]) % shape[d] if periodic else c[d] + o[d] for d in range(len(c))) for o in corners]
+        if all(p in index for p in pts):
+            out.append([index[p] for p in pts])
+    return out
+
+
+def _cliques(topology, limit: int = 200_000):
+    import networkx as nx
+
+    out = []
+    for c in nx.enumerate_all_cliques(topology.index_graph()):
+        if len(c) > 4:
+            break
+        if len(c) >= 3:
+            out.append(c)
+            if len(out) >= limit:
+                break
+    return out
+
+
+_GROUPS = {"cell": _cells, "tile": _tiles, "clique": _cliques}
+
+
+def applicable_shapes(topology) -> list[str]:
+    """The patch shapes that have sites on ``topology`` (``ball`` always does)."""
+    return [s for s in SHAPES if s == "ball" or _GROUPS[s](topology)]
+
+
+# -------------------------------------------------------------------- patches
+@functools.lru_cache(maxsize=32)
+def _states(k: int) -> np.ndarray:
+    """All 2^(k-1) states of k spins with spin 0 fixed to +1 (a global flip costs nothing); row 0 is all +1."""
+    idx = np.arange(1 << (k - 1))[:, None]
+    rest = 1 - 2 * ((idx >> np.arange(k - 1)) & 1)
+    return np.concatenate([np.ones((idx.shape[0], 1), dtype=np.int64), rest], axis=1).astype(np.int8)
+
+
+def local_pairs(spins, edges, topology_edges) -> np.ndarray:
+    """(E, 2) positions in ``spins`` of the two ends of each edge."""
+    pos = {v: k for k, v in enumerate(spins)}
+    ends = np.asarray(topology_edges)[list(edges)]
+    try:
+        return np.array([[pos[int(a)], pos[int(b)]] for a, b in ends], dtype=np.int64).reshape(-1, 2)
+    except KeyError:
+        raise InputError("a patch edge has an end outside the patch's spins") from None
+
+
+def draw_patch(shape: str, spins, edges, topology_edges, rng, weights=(1.0,), keep: float = 1.0) -> Patch:
+    """A random patch on a site: random couplings gauged by one of their ground states.
+
+    Each edge of the site gets ±w (w drawn from ``weights``, sign at random)
+    with probability ``keep``, else 0; the patch's 2^k states are enumerated,
+    one ground state g is chosen at random, and every coupling J_ab becomes
+    g_a g_b J_ab, so all +1 is a ground state of the result.
+
+    >>> p = draw_patch("tile", (0, 1, 2, 3), (0, 1, 2, 3), [[0, 1], [1, 2], [2, 3], [0, 3]], 1)
+    >>> ground_state_ok([[0, 1], [1, 2], [2, 3], [0, 3]], p.values(), 4)
+    True
+    """
+    rng = as_generator(rng)
+    spins = tuple(spins)
+    k = len(spins)
+    if not 2 <= k <= MAX_PATCH_SPINS:
+        raise InputError(f"a patch needs 2 to {MAX_PATCH_SPINS} spins, got {k}")
+    pairs = local_pairs(spins, edges, topology_edges)
+    w = np.asarray(weights, dtype=np.float64)
+    vals = w[rng.integers(w.size, size=len(edges))] * (2 * rng.integers(0, 2, size=len(edges)) - 1)
+    vals = vals * (rng.random(len(edges)) < keep)
+    S = _states(k)
+    E = (S[:, pairs[:, 0]] * S[:, pairs[:, 1]]) @ vals
+    ground = np.flatnonzero(E <= E.min() + _TOL)
+    g = S[ground[int(rng.integers(ground.size))]].astype(np.float64)
+    vals = vals * g[pairs[:, 0]] * g[pairs[:, 1]] + 0.0
+    return Patch(shape, spins, edges, vals)
+
+
+def check_patch(patch: Patch, topology_edges) -> None:
+    """CertificationError unless all +1 is a ground state of ``patch`` (by enumeration)."""
+    k = len(patch.spins)
+    if not 2 <= k <= MAX_PATCH_SPINS or len(set(patch.spins)) != k:
+        raise CertificationError(f"a patch must have 2 to {MAX_PATCH_SPINS} distinct spins, got {k}")
+    e = np.asarray(patch.edges, dtype=np.int64)
+    if e.size == 0 or e.min() < 0 or e.max() >= len(topology_edges) or len(set(patch.edges)) != e.size:
+        raise CertificationError("a patch refers to edges that are not in the graph, or to one edge twice")
+    try:
+        pairs = local_pairs(patch.spins, patch.edges, topology_edges)
+    except InputError as exc:
+        raise CertificationError(str(exc)) from None
+    if not np.all(np.isfinite(patch.values())) or not ground_state_ok(pairs, patch.values(), k):
+        raise CertificationError(f"a {patch.shape} patch does not have the planted state among its ground states")
+
+
+def term_couplings(terms, m: int) -> np.ndarray:
+    """Summed planted-gauge couplings of loops and patches on ``m`` edges."""
+    if not terms:
+        return np.zeros(m)
+    idx = np.concatenate([np.asarray(t.edges, dtype=np.int64) for t in terms])
+    val = np.concatenate([t.values() for t in terms])
+    if idx.size and (idx.min() < 0 or idx.max() >= m):
+        raise InputError(f"a term refers to an edge outside 0..{m - 1}")
+    return np.bincount(idx, weights=val, minlength=m)
+
+
+def terms_bound(terms) -> float:
+    """E0 = sum of the terms' minima (their values at the planted state)."""
+    return float(sum(t.bound for t in terms))
+
+
+# ------------------------------------------------------------------ the family
+def _parse_kinds(kinds) -> dict:
+    if isinstance(kinds, str):
+        kinds = {k.strip(): 1.0 for k in kinds.split(",") if k.strip()}
+    if not isinstance(kinds, dict) or not kinds:
+        raise InputError(f"kinds must name term kinds with weights, e.g. {{loop = 1, cell = 1}}; got {kinds!r}")
+    bad = [k for k in kinds if k not in KINDS]
+    if bad:
+        raise InputError(f"unknown term kind {bad[0]!r}; choose from: {', '.join(KINDS)}")
+    for k, v in kinds.items():
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not np.isfinite(v) or v < 0:
+            raise InputError(f"the weight of term kind {k!r} must be a number >= 0, got {v!r}")
+    if sum(kinds.values()) <= 0:
+        raise InputError("at least one term kind needs a positive weight")
+    return {k: float(v) for k, v in kinds.items() if v > 0}
+
+
+def terms_instance(topology, loops, patches, gauge, cap=None, **construction):
+    """An Instance of a term sum with planted state ``gauge`` (every graph edge kept)."""
+    from ..instance import Instance
+
+    J = term_couplings(list(loops) + list(patches), topology.m)
+    if cap is not None and np.any(np.abs(J) > cap + _TOL):
+        raise InputError(f"the terms accumulate |J| = {np.abs(J).max():g} on an edge, above the cap {cap:g}")
+    g = np.asarray(gauge, dtype=np.int8)
+    J = J * g[topology.edges[:, 0]] * g[topology.edges[:, 1]] + 0.0
+    terms = list(loops) + list(patches)
+    con = {"family": "terms", **construction, "cap": cap, "loop_count": len(loops), "patch_count": len(patches),
+           "planted_energy": terms_bound(terms), "loops": [t.to_list() for t in loops],
+           "patches": [t.to_list() for t in patches]}
+    return Instance(edges=topology.edges, J=J, n=topology.n, labels=topology.labels, graph=topology.spec,
+                    planted=g, metadata={"kind": "planted", "construction": con})
+
+
+def plant_terms(graph, density: float = 0.3, seed=None, *, kinds="loop,ball", cap: float | None = None,
+                weights=(1.0,), min_length: int = 4, patch_size: int = 8, max_redraws: int = 200):
+    """A random sum of ``round(density * n)`` terms of the given kinds, under a cap.
+
+    Parameters
+    ----------
+    graph : str or Topology
+    density : float
+        Terms per spin.
+    seed : int, optional
+    kinds : str or dict
+        Term kinds and their weights: ``loop`` and the patch shapes ``cell``,
+        ``tile``, ``clique``, ``ball`` (``"loop,cell"`` gives equal weights).
+    cap : float, optional
+        Largest |J| an edge may accumulate (range limit).
+    weights : sequence of float
+        Magnitudes a loop or a patch coupling draws from.
+    min_length : int
+        Shortest loop.
+    patch_size : int
+        Spins in a ``ball`` patch.
+    max_redraws : int
+        Tries per term to fit under the cap.
+
+    Examples
+    --------
+    >>> inst = plant_terms("square:6", density=0.2, seed=2, kinds="tile")
+    >>> inst.metadata["construction"]["patch_count"] > 0
+    True
+    """
+    from ..instance import random_gauge
+    from ..make import topology as _topology
+
+    if not (isinstance(density, (int, float)) and np.isfinite(density) and density > 0):
+        raise InputError(f"density must be a positive number of terms per spin, got {density!r}")
+    w = np.asarray(weights, dtype=np.float64).reshape(-1)
+    if w.size == 0 or not np.all(np.isfinite(w)) or np.any(w <= 0):
+        raise InputError(f"weights must be positive numbers, got {weights!r}")
+    if cap is not None and not (np.isfinite(cap) and cap >= w.min()):
+        raise InputError(f"the cap must be at least the smallest weight ({w.min():g}), got {cap!r}")
+    if not 2 <= int(patch_size) <= MAX_PATCH_SPINS:
+        raise InputError(f"patch_size must lie between 2 and {MAX_PATCH_SPINS}, got {patch_size!r}")
+    kinds = _parse_kinds(kinds)
+    topo = _topology(graph)
+    rng = as_generator(seed)
+    sites = {k: Sites.of(topo, k, patch_size) for k in kinds if k != "loop"}
+    lg = LoopGraph.of(topo) if "loop" in kinds else None
+    names, p = list(kinds), np.array(list(kinds.values()))
+    acc = np.zeros(topo.m)
+    loops, patches = [], []
+    for _ in range(max(1, int(round(density * topo.n)))):
+        kind = names[int(rng.choice(len(names), p=p / p.sum()))]
+        for _attempt in range(max_redraws):
+            if kind == "loop":
+                term = random_loop(lg, rng, min_length, weight=float(w[rng.integers(w.size)]))
+            else:
+                spins, edges = sites[kind].pick(rng)
+                term = draw_patch(kind, spins, edges, topo.edges, rng, w)
+            if fits(acc, term, cap):
+                break
+        else:
+            continue
+        acc[list(term.edges)] += term.values()
+        (loops if kind == "loop" else patches).append(term)
+    gauge = random_gauge(topo.n, rng)
+    return terms_instance(topo, loops, patches, gauge, cap=cap, density=float(density), kinds=kinds,
+                          weights=w.tolist(), min_length=int(min_length), patch_size=int(patch_size),
+                          seed=int(seed) if isinstance(seed, (int, np.integer)) else None)
+
+
+def terms_of(instance) -> tuple[list[Loop], list[Patch]]:
+    """The loops and patches stored in a term instance's metadata."""
+    con = construction_of(instance, "terms")
+    loops, patches = con.get("loops", []), con.get("patches", [])
+    if not isinstance(loops, list) or not isinstance(patches, list):
+        raise FormatError("the term construction must hold lists 'loops' and 'patches'")
+    return [Loop.from_list(x) for x in loops], [Patch.from_list(x) for x in patches]
+
+
+def verify(instance) -> dict:
+    """Check a term instance's proof; details for a Certificate, or CertificationError.
+
+    Every loop must be a simple cycle with one frustrated edge; every patch is
+    enumerated to confirm the planted state is among its ground states; the
+    terms must rebuild the couplings exactly (under the planted gauge), there
+    must be no fields, and the planted energy must equal the sum of the terms'
+    minima.
+    """
+    loops, patches = terms_of(instance)
+    if instance.has_fields:
+        raise CertificationError("the instance has fields, which the term construction does not account for")
+    try:
+        for loop in loops:
+            check_loop(loop, instance.edges)
+    except InputError as exc:
+        raise CertificationError(f"stored loop is not valid: {exc}") from None
+    for patch in patches:
+        check_patch(patch, instance.edges)
+    acc = term_couplings(loops + patches, instance.m)
+    tol = _TOL * max(1.0, instance.scale)
+    if not np.allclose(acc, planted_gauge_couplings(instance), rtol=0, atol=tol):
+        raise CertificationError("the stored terms do not rebuild the couplings")
+    bound = terms_bound(loops + patches)
+    energy = instance.energy(instance.planted)
+    if abs(energy - bound) > tol * max(1, instance.m):
+        raise CertificationError(f"the planted state's energy {energy:g} differs from the terms' bound {bound:g}")
+    return {
+        "family": "terms", "loops": len(loops), "patches": len(patches), "bound": bound,
+        "proof": ("the couplings are a sum of frustrated loops (each broken at least once by every state, "
+                  "minimum -w (L - 2)) and small patches (each enumerated: the planted state is among its "
+                  "ground states), so E(s) >= sum of the terms' minima = E(planted)"),
+    }
+
+
+FAMILY = PlantedFamily("terms", plant_terms, verify,
+                       "sums of frustrated loops and small frustrated patches (cells, tiles, cliques, balls), "
+                       "each with the planted state as a ground state; density = terms per spin")
