@@ -53,6 +53,8 @@ def run(args):
         print(f"lower bound    {d['lower_bound']:.12g}  (gap {d['gap']:.6g})")
     if "proof" in d:
         print(f"why            {d['proof']}")
+    for reason in d.get("passed_over", []):
+        print(f"passed over    {reason}")
     if cert.status == "unverified":
         print(d["warning"])
     if args.write:

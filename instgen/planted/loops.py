@@ -14,12 +14,16 @@ range-limited variant (a loop that would break the cap is drawn again).
 
 The API is built for repeated, cheap use by the breeding engine::
 
-    graph = LoopGraph.of(topology)               # once per run
-    loop = random_loop(graph, rng, min_length=6) # a new loop
-    J = loop_couplings(loops, graph.m, cap=3, gauge=g, edges=graph.edges)
-    inst = loop_instance(topology, loops, g, cap=3)
+    graph = LoopGraph.of(topology)                # once per run
+    loops = LoopSet.of(loops_of(inst), graph.m, cap=3)
+    loop = random_loop(graph, rng, min_length=6)  # a new loop
+    loops.add(loop)                               # False (and unchanged) if it breaks the cap
+    loops.replace(k, loop); loops.remove(k)       # O(L) each, cap kept
+    J = loops.couplings(gauge=g, edges=graph.edges)
+    inst = loop_instance(topology, loops.loops, g, cap=3)
 
-and :func:`loops_of` recovers the loop list of a planted instance.
+:func:`loop_couplings` does the same from a plain list, and :func:`loops_of`
+recovers the loop list of a planted instance.
 """
 
 from __future__ import annotations
@@ -85,6 +89,87 @@ class Loop:
             return cls(spins, edges, frustrated, weight)
         except (TypeError, ValueError):
             raise FormatError(f"a loop must be [spins, edges, frustrated, weight], got {str(item)[:80]}") from None
+
+
+class LoopSet:
+    """A mutable set of loops with its accumulated planted-gauge couplings and the cap kept.
+
+    Adding, removing and replacing a loop cost O(L); a change that would push
+    any |J| above ``cap`` is refused (the set is left unchanged).
+
+    >>> sq = Loop((0, 1, 2, 3), (0, 2, 3, 1), frustrated=0)
+    >>> ls = LoopSet.of([sq], m=4, cap=1)
+    >>> ls.add(sq), len(ls), ls.bound
+    (False, 1, -2.0)
+    """
+
+    def __init__(self, m: int, cap: float | None = None):
+        self.m, self.cap = int(m), cap
+        self.loops: list[Loop] = []
+        self.acc = np.zeros(self.m)
+
+    @classmethod
+    def of(cls, loops, m: int, cap: float | None = None) -> LoopSet:
+        """A set holding ``loops``; InputError if together they break the cap."""
+        out = cls(m, cap)
+        out.acc = loop_couplings(loops, m, cap=cap)
+        out.loops = list(loops)
+        return out
+
+    def __len__(self) -> int:
+        return len(self.loops)
+
+    @property
+    def bound(self) -> float:
+        """The planted energy, -sum w (L - 2)."""
+        return planted_bound(self.loops)
+
+    def fits(self, loop: Loop, without: int | None = None) -> bool:
+        """Would the cap hold with ``loop`` added (and loop number ``without`` taken out)?"""
+        if self.cap is None:
+            return True
+        acc = self.acc
+        if without is not None:
+            acc = acc.copy()
+            old = self.loops[without]
+            acc[list(old.edges)] -= old.values()
+        return fits(acc, loop, self.cap)
+
+    def add(self, loop: Loop) -> bool:
+        if not self.fits(loop):
+            return False
+        self.acc[list(loop.edges)] += loop.values()
+        self.loops.append(loop)
+        return True
+
+    def remove(self, k: int) -> Loop:
+        loop = self.loops.pop(k)
+        self.acc[list(loop.edges)] -= loop.values()
+        return loop
+
+    def replace(self, k: int, loop: Loop) -> bool:
+        if not self.fits(loop, without=k):
+            return False
+        old = self.loops[k]
+        self.acc[list(old.edges)] -= old.values()
+        self.acc[list(loop.edges)] += loop.values()
+        self.loops[k] = loop
+        return True
+
+    def couplings(self, gauge=None, edges=None) -> np.ndarray:
+        """J of the set, gauged like :func:`loop_couplings`."""
+        if gauge is None:
+            return self.acc.copy()
+        if edges is None:
+            raise InputError("LoopSet.couplings needs the edge array to apply a gauge")
+        g = np.asarray(gauge, dtype=np.float64)
+        e = np.asarray(edges, dtype=np.int64).reshape(-1, 2)
+        return self.acc * g[e[:, 0]] * g[e[:, 1]]
+
+    def copy(self) -> LoopSet:
+        out = LoopSet(self.m, self.cap)
+        out.loops, out.acc = list(self.loops), self.acc.copy()
+        return out
 
 
 @dataclasses.dataclass(frozen=True, eq=False)
@@ -365,20 +450,16 @@ def plant_loops(graph, density: float = 0.3, seed=None, *, min_length: int = 4, 
     lg = LoopGraph.of(topo)
     rng = as_generator(seed)
     count = max(1, int(round(density * topo.n)))
-    acc = np.zeros(topo.m)
-    loops = []
+    loops = LoopSet(topo.m, cap)
     for _ in range(count):
         for _attempt in range(max_redraws):
-            loop = random_loop(lg, rng, min_length, max_length, weight=float(w[rng.integers(w.size)]))
-            if fits(acc, loop, cap):
+            if loops.add(random_loop(lg, rng, min_length, max_length, weight=float(w[rng.integers(w.size)]))):
                 break
         else:
             raise InputError(f"only {len(loops)} of {count} loops fit under the cap {cap:g} on {topo.spec}; "
                              "lower the density, raise the cap, or shorten the loops")
-        acc[list(loop.edges)] += loop.values()
-        loops.append(loop)
     gauge = random_gauge(topo.n, rng)
-    return loop_instance(topo, loops, gauge, cap=cap, density=float(density), min_length=int(min_length),
+    return loop_instance(topo, loops.loops, gauge, cap=cap, density=float(density), min_length=int(min_length),
                          max_length=max_length, weights=w.tolist(),
                          seed=int(seed) if isinstance(seed, (int, np.integer)) else None)
 

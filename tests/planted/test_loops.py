@@ -126,3 +126,29 @@ def test_done_criterion_graphs_come_out_certified():
         inst = plant(spec, "loops", seed=1, density=0.3)
         cert = inst.metadata["certificate"]
         assert cert["status"] == "planted" and cert["energy"] == inst.metadata["construction"]["planted_energy"]
+
+
+def test_loop_set_edits_keep_the_cap_and_the_proof():
+    # many random add / remove / replace edits on a small graph; every result checked with ExactSolver
+    from instgen.planted.loops import LoopSet
+
+    topo = topology("chimera:1,2")
+    lg = LoopGraph.of(topo)
+    rng = np.random.default_rng(4)
+    ls = LoopSet(topo.m, cap=2)
+    for step in range(60):
+        loop = random_loop(lg, rng, min_length=4, weight=float(rng.choice([1.0, 2.0])))
+        r = rng.random()
+        if r < 0.5 or not len(ls):
+            ls.add(loop)
+        elif r < 0.75:
+            ls.remove(int(rng.integers(len(ls))))
+        else:
+            ls.replace(int(rng.integers(len(ls))), loop)
+        assert np.abs(ls.acc).max(initial=0) <= 2
+        assert np.allclose(ls.acc, loop_couplings(ls.loops, topo.m))
+        if step % 20 == 19 and len(ls):
+            g = (2 * rng.integers(0, 2, topo.n) - 1)
+            inst = loop_instance(topo, ls.loops, g, cap=2)
+            assert np.array_equal(inst.J, ls.couplings(gauge=g, edges=topo.edges))
+            assert exact_ground(inst) == pytest.approx(ls.bound)  # dimod's ExactSolver
