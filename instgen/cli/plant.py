@@ -22,7 +22,7 @@ random gauge, and write it with a checked 'planted' certificate, e.g.
 FLAGS = {
     "density": "density", "min_length": "min-length", "max_length": "max-length", "cap": "cap",
     "weights": "loop-weights", "alpha": "alpha", "disorder": "disorder", "coupling_range": "coupling-range",
-    "mix": "mix",
+    "mix": "mix", "kinds": "kinds", "patch_size": "patch-size",
 }
 
 
@@ -55,6 +55,9 @@ def add_arguments(p):
     g = p.add_argument_group("tiles")
     g.add_argument("--mix", metavar="P1,P2,P3",
                    help="weights of the tile classes: c1,c2,c3 on square, f2,f4,f6 on cubic lattices")
+    g = p.add_argument_group("terms")
+    g.add_argument("--kinds", metavar="K1,K2", help="term kinds, e.g. loop,ball or loop:2,cell:1")
+    g.add_argument("--patch-size", type=int, dest="patch_size", metavar="K", help="spins per patch")
     add_seed(p)
     p.add_argument("--no-certificate", action="store_true", help="skip checking the construction's proof")
     p.add_argument("-o", "--output", metavar="FILE", help="instance file to write")
