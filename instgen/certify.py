@@ -63,7 +63,10 @@ def certify(instance: Instance, method: str = "auto", time_limit: float = 60.0, 
         ``exact`` and ``tree`` are refused up front (ResourceError) when their
         estimate is above it, since they cannot be interrupted.
     seed : int, optional
-        Seeds the anneals (same seed, same result).
+        Seeds the anneals.  The same seed gives the same result whenever the
+        anneals settle (most reads agree on the best energy for three rounds)
+        before the time runs out; a run cut short by ``time_limit`` depends on
+        the machine's speed, and ``details["sweeps"]`` records what was done.
     memory_limit : float
         Bytes the tree decomposition may use.
     count_limit : int
