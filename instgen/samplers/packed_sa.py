@@ -91,12 +91,13 @@ def packed_arrays(lay, J: np.ndarray, h: np.ndarray) -> dict:
     wmax = int(W.max(initial=1))
     planes = max(1, wmax.bit_length())
     unit = bool(np.all(np.abs(Jc) == 1) and np.all(np.abs(h) <= 1) and planes <= _pk.UNIT_PLANES)
+    c = np.ascontiguousarray  # one memory layout, so the kernel keeps one compiled signature
     return {
-        "cpos": np.where(Jc > 0, _pk.ONES, np.uint64(0)).astype(np.uint64),
-        "wt": np.abs(Jc).astype(np.int64),
-        "hpos": np.where(h > 0, _pk.ONES, np.uint64(0)).astype(np.uint64),
-        "hw": np.abs(h).astype(np.int64),
-        "W": np.rint(W).astype(np.int64),
+        "cpos": c(np.where(Jc > 0, _pk.ONES, np.uint64(0)), dtype=np.uint64),
+        "wt": c(np.abs(Jc), dtype=np.int64),
+        "hpos": c(np.where(h > 0, _pk.ONES, np.uint64(0)), dtype=np.uint64),
+        "hw": c(np.abs(h), dtype=np.int64),
+        "W": c(np.rint(W), dtype=np.int64),
         "planes": planes,
         "unit": unit,
     }
