@@ -68,6 +68,9 @@ class PathIntegral(Sampler):
 
     name = "pimc"
     options = {"transverse": 2.0}
+    #: Keep each replica's state after every ``record_every``-th sweep (0: none);
+    #: set by :func:`anneal_snapshots`, never an option, so scores are unchanged.
+    record_every = 0
 
     def _run(self, instance, schedule, reads, seed, options):
         from dwave.samplers import PathIntegralAnnealingSampler
@@ -75,7 +78,10 @@ class PathIntegral(Sampler):
         problem, driver = field_arrays(schedule, options["transverse"])
         ss = PathIntegralAnnealingSampler().sample(
             index_bqm(instance), num_reads=reads, seed=seed, beta_schedule_type="custom",
-            Hp_field=problem, Hd_field=driver, num_sweeps_per_beta=1)
+            Hp_field=problem, Hd_field=driver, num_sweeps_per_beta=1,
+            schedule_sample_interval=self.record_every or None)
+        if self.record_every:
+            self.snapshots = _snapshot_array(ss, instance.n)
         states = index_states(ss, instance.n)
         energies = np.empty(len(ss))
         energies[:] = ss.record.energy
@@ -85,3 +91,57 @@ class PathIntegral(Sampler):
                              "temperature_beta": schedule.beta_range[1],
                              "transverse": float(options["transverse"]),
                              "problem_field": problem.tolist(), "transverse_field": driver.tolist()}}
+
+
+def _snapshot_array(sampleset, n: int) -> np.ndarray:
+    """The sampler's mid-anneal states as (reads, points, n) int8, columns in index order."""
+    stats = np.asarray(sampleset.info["statistics"], dtype=np.int8)
+    out = np.empty_like(stats)
+    out[:, :, np.asarray(list(sampleset.variables), dtype=np.int64)] = stats
+    return out
+
+
+def anneal_snapshots(instance, schedule, every: int, reads: int = 100, seed=None, **options):
+    """Anneal as :class:`PathIntegral` does and keep every replica's state along the way.
+
+    The states are read (projected onto one imaginary-time slice, like the final
+    states) after sweeps 0, ``every``, 2 * ``every``, ... of the schedule; reading
+    them does not change the anneal, so the final states equal those of
+    ``PathIntegral().run`` with the same arguments.
+
+    Parameters
+    ----------
+    instance : Instance
+    schedule : Schedule
+    every : int
+        Sweeps between recorded states (at least 1, at most ``schedule.sweeps``).
+    reads : int
+    seed : int, optional
+    **options
+        Sampler options (``transverse``).
+
+    Returns
+    -------
+    batch : SampleBatch
+        The final states, exactly as :meth:`Sampler.run` returns them.
+    snapshots : (reads, points, n) int8 array
+        State of each replica at each recorded sweep.
+    sweeps : (points,) int array
+        Index (0-based) of the sweep after which each state was read.
+
+    Examples
+    --------
+    >>> from instgen.make import make_instance
+    >>> from instgen.samplers import Schedule
+    >>> inst = make_instance("chimera:1", "pm1", seed=3)
+    >>> batch, snaps, at = anneal_snapshots(inst, Schedule(sweeps=21), every=10, reads=3, seed=1)
+    >>> snaps.shape, at.tolist()
+    ((3, 3, 8), [0, 10, 20])
+    """
+    if isinstance(every, bool) or not isinstance(every, (int, np.integer)) or not 1 <= every <= schedule.sweeps:
+        raise InputError(f"every must be a whole number from 1 to the schedule's {schedule.sweeps} sweeps, "
+                         f"got {every!r}")
+    sampler = PathIntegral()
+    sampler.record_every = int(every)
+    batch = sampler.run(instance, schedule, reads=reads, seed=seed, **options)
+    return batch, sampler.snapshots, np.arange(0, schedule.sweeps, int(every))

@@ -1,0 +1,295 @@
+"""The HTML page for a run folder (see :mod:`instgen.report.html`).
+
+Everything shown comes from ``summary.json``, ``log.jsonl`` and the
+``hall_of_fame/`` files, except two things measured afresh while the report
+is written, and captioned as such: residual energy at every sweep count of the
+grid (the run stores it at one count) and the anneal profiles of the best
+winners.  Their seeds derive from the report's ``seed``.
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+from ..errors import InstgenError
+from ..seeds import derive_seed
+from . import plots
+from .html import (BOUND_NOTE, CURVES_SHOWN, PLOTS_DIR, esc, figure, fmt, footer_text, load_run, num_cell, page,
+                   score_cell, score_head, status_cell, table, text_cell)
+
+
+def _save(fig, folder: Path, name: str) -> bytes:
+    png = plots.png_bytes(fig)
+    from ..io import atomic_write
+
+    atomic_write(folder / PLOTS_DIR / name, png)
+    return png
+
+
+def _score(entry: dict, metric: str, solver: str) -> dict | None:
+    return next((s for s in entry["scores"] if s["metric"] == metric and s["solver"] == solver), None)
+
+
+def _load_winner(folder: Path, entry: dict):
+    from ..io import load_instance
+
+    if not entry.get("file"):
+        return None
+    path = folder / "hall_of_fame" / entry["file"]
+    return load_instance(path) if path.is_file() else None
+
+
+def _curve(folder, entry, run, reads, measure, seed, notes):
+    """TTS per sweep count (stored, else measured) and residual energy per count (measured)."""
+    from ..scoring import measure_many
+
+    solver = run["sampler"]
+    tts = _score(entry, "tts", solver)
+    inst = _load_winner(folder, entry) if (measure or tts is None) else None
+    sched = (tts or (entry["scores"][0] if entry["scores"] else {})).get("schedule") or {}
+    options = {solver: {"transverse": sched["transverse"]}} if solver == "pimc" and "transverse" in sched else None
+    common = dict(reads=reads, beta_range=run["beta_range"], options=options,
+                  schedule={"interpolation": sched.get("interpolation", "geometric")})
+    if tts is None or not tts.get("extra", {}).get("per_sweeps"):
+        if inst is None or not measure:
+            return None
+        tts = measure_many(inst, ["tts"], [solver], sweeps=run["sweeps"],
+                           seed=derive_seed(seed, "report-tts", entry.get("key", entry["file"])), **common)[0].to_dict()
+        notes.append(f"winner {entry['rank']}: its TTS per sweep count was not stored, so it was measured afresh "
+                     f"for this report ({reads} reads per sweep count).")
+    rows = tts["extra"]["per_sweeps"]
+    c = {"label": f"#{entry['rank']} {entry['file']}", "sweeps": [r["sweeps"] for r in rows],
+         "tts": [math.nan if r["tts"] is None else r["tts"] for r in rows], "tts_ci": [r.get("tts_ci") for r in rows],
+         "tts_kind": [r.get("kind", "value") for r in rows], "best_sweeps": tts["extra"].get("best_sweeps"),
+         "best_kind": tts.get("kind", "value"),
+         "residual": [], "residual_ci": []}
+    if measure and inst is not None:
+        for k in c["sweeps"]:
+            s = measure_many(inst, ["residual"], [solver], sweeps=[k],
+                             seed=derive_seed(seed, "report-residual", entry.get("key", entry["file"]), k), **common)[0]
+            c["residual"].append(s.value)
+            c["residual_ci"].append(list(s.ci) if s.ci else [s.value, s.value])
+    return c
+
+
+def fitness_words(metric: str):
+    """(column words, converter) for a run's fitness values: TTS fitness is log10 TTS99 in sweeps."""
+    if metric == "tts":
+        return "TTS99 (sweeps)", lambda v: None if v is None else 10.0 ** v
+    return f"fitness ({metric})", lambda v: v
+
+
+def _winners_table(summary: dict) -> str:
+    run = summary["run"]
+    metrics = sorted({s["metric"] for e in summary["winners"] for s in e["scores"]})
+    pairs = [(m, s) for m in metrics for s in run["solvers"]]
+    fit_name, conv = fitness_words(run["metric"])
+    head = ["#", "file", "spins", "couplings", "ground-state energy", "how it is known", "certify time (s)",
+            "ground states found", "found in generation", f"search {fit_name}", f"confirmed {fit_name}"]
+    planted = any(e.get("construction") for e in summary["winners"])
+    head += ["planted family"] if planted else []
+    head += [score_head(m, s, [_score(e, m, s) for e in summary["winners"]]) for m, s in pairs]
+    rows = []
+    for e in summary["winners"]:
+        c = e["certificate"]
+        gen = e.get("generation")
+        rows.append([num_cell(e["rank"]), text_cell(e["file"]), num_cell(e["n"]), num_cell(e["m"]),
+                     num_cell(c["energy"], 10), status_cell(c), num_cell(c.get("seconds"), 3),
+                     num_cell(c.get("ground_states")), num_cell(None if gen is None else gen + 1),
+                     num_cell(conv(e.get("search_fitness"))), num_cell(conv(e.get("confirmed_fitness")))]
+                    + ([text_cell(e.get("construction") or "–")] if planted else [])
+                    + [score_cell(_score(e, m, s)) for m, s in pairs])
+    return table(head, rows, "winners")
+
+
+def _baseline_table(summary: dict) -> str:
+    run = summary["run"]
+    base = summary["baseline"]["instances"]
+    metrics = sorted({s["metric"] for e in base for s in e["scores"]})
+    pairs = [(m, s) for m in metrics for s in run["solvers"]]
+    head = ["#", "spins", "couplings", "ground-state energy", "how it is known"] + [
+        score_head(m, s, [_score(e, m, s) for e in base]) for m, s in pairs]
+    rows = [[num_cell(i), num_cell(e["n"]), num_cell(e["m"]), num_cell(e["certificate"]["energy"], 10),
+             status_cell(e["certificate"])] + [score_cell(_score(e, m, s)) for m, s in pairs]
+            for i, e in enumerate(base, 1)]
+    return table(head, rows, "baseline")
+
+
+def ratio_interval(winners, baseline, seed, draws: int = 2000, confidence: float = 0.95):
+    """Percentile bootstrap interval of median(winners) / median(baseline), resampling instances.
+
+    None when either group has fewer than two finite values or a resampled
+    baseline median can be zero.
+    """
+    import numpy as np
+
+    from ..seeds import as_generator
+
+    w = np.array([v for v in winners if isinstance(v, (int, float)) and math.isfinite(v)], dtype=float)
+    b = np.array([v for v in baseline if isinstance(v, (int, float)) and math.isfinite(v)], dtype=float)
+    if w.size < 2 or b.size < 2 or np.any(b == 0):
+        return None
+    rng = as_generator(seed)
+    rw = np.median(w[rng.integers(0, w.size, (draws, w.size))], axis=1)
+    rb = np.median(b[rng.integers(0, b.size, (draws, b.size))], axis=1)
+    lo, hi = np.quantile(rw / rb, [(1 - confidence) / 2, (1 + confidence) / 2])
+    return float(lo), float(hi)
+
+
+def _values(entries, metric, solver):
+    return [s["value"] for e in entries for s in e["scores"] if s["metric"] == metric and s["solver"] == solver]
+
+
+def ratio_intervals(summary: dict, seed: int) -> list:
+    """The bootstrap interval of each comparison row's ratio (None where it cannot be formed)."""
+    return [ratio_interval(_values(summary["winners"], r["metric"], r["solver"]),
+                           _values(summary["baseline"]["instances"], r["metric"], r["solver"]),
+                           derive_seed(seed, "report-ratio", r["metric"], r["solver"]))
+            for r in summary["comparison"]]
+
+
+def ratio_cautions(summary: dict, intervals) -> list[str]:
+    """Plain words where the hall of fame is not clearly harder than random instances."""
+    from ..scoring import METRICS
+
+    out = []
+    for r, ci in zip(summary["comparison"], intervals):
+        if ci is None:
+            continue
+        harder = METRICS.get(r["metric"]).harder if r["metric"] in METRICS.names() else "higher"
+        clear = ci[0] > 1 if harder == "higher" else ci[1] < 1
+        if not clear:
+            out.append(f"{r['metric']} on {r['solver']}: the 95% interval of the hall-of-fame / random ratio "
+                       f"({ci[0]:.3g} to {ci[1]:.3g}) does not exclude 1, so the winners are not clearly harder "
+                       "than random instances on this measure.")
+    return out
+
+
+def _comparison_table(summary: dict, intervals) -> str:
+    rows = []
+    for r, ci in zip(summary["comparison"], intervals):
+        rows.append([text_cell(r["metric"]), text_cell(r["solver"]), num_cell(r["winners_median"]),
+                     num_cell(r["baseline_median"]), num_cell(r["ratio"], 3),
+                     text_cell("–" if ci is None else f"{fmt(ci[0], 3)} to {fmt(ci[1], 3)}"),
+                     num_cell(r["winners"]), num_cell(r["baseline"])])
+    return table(["metric", "solver", "hall of fame median", "random median", "ratio (hall of fame / random)",
+                  "ratio, 95% interval", "hall of fame instances", "random instances"], rows, "comparison") + (
+        '<p class="note">The interval resamples the instances of each group (bootstrap of the ratio of medians); '
+        "with few instances it is wide. Bounds enter as if they were values.</p>")
+
+
+SETTING_NAMES = {"name": "run name", "id": "run id", "seed": "run seed", "graph": "graph", "n": "spins",
+                 "m": "couplings", "metric": "fitness metric", "sampler": "search sampler",
+                 "solvers": "solvers measured on", "sweeps": "sweep counts",
+                 "beta_range": "inverse temperature range (hot, cold)", "preset_hash": "preset checksum",
+                 "folder": "run folder"}
+
+
+def _settings_table(summary: dict) -> str:
+    run = dict(summary["run"])
+    rules = run.pop("rules", {}) or {}
+    show = lambda v: "–" if v is None else ", ".join(map(str, v)) if isinstance(v, list) else v
+    rows = [[text_cell(SETTING_NAMES.get(k, k)), text_cell(show(v))] for k, v in run.items()]
+    rows += [[text_cell(f"coupling rules: {k.replace('_', ' ')}"), text_cell(show(v))] for k, v in rules.items()]
+    rows += [[text_cell("stopped because"), text_cell(summary.get("stopped"))],
+             [text_cell("generations"), num_cell(summary.get("generations"))],
+             [text_cell("evaluations"), num_cell(summary.get("evaluations"))],
+             [text_cell("search time (s)"), num_cell(summary.get("elapsed"), 4)],
+             [text_cell("random baseline instances"), num_cell(summary["baseline"]["count"])]]
+    return table(["setting", "value"], rows, "settings")
+
+
+def _profile_section(folder, summary, profiles, reads, sweeps, seed, notes) -> str:
+    from .profile import anneal_profile, write_profile
+
+    parts = []
+    for e in summary["winners"][:profiles]:
+        inst = _load_winner(folder, e)
+        if inst is None:
+            notes.append(f"winner {e['rank']}: its file {e['file']} is missing from hall_of_fame/, so it has no "
+                         "anneal profile.")
+            continue
+        try:
+            prof = anneal_profile(inst, points=20, reads=reads, sweeps=sweeps, seed=derive_seed(seed, "report",
+                                  "profile", e["rank"]), beta_range=summary["run"]["beta_range"])
+        except InstgenError as exc:
+            notes.append(f"winner {e['rank']}: no anneal profile ({exc}).")
+            continue
+        stem = f"profile-{e['rank']:02d}"
+        paths = write_profile(prof, folder / PLOTS_DIR, stem)
+        fit = prof.fit
+        verdict = ("<strong>poor fit</strong>: " + esc("; ".join(fit.notes))) if fit.poor else "the fit is good"
+        caption = (f"Anneal profile of winner #{e['rank']} ({esc(e['file'])}), measured for this report on the "
+                   f"path-integral surrogate. Energy stops falling at its early rate near s = "
+                   f"{fit.s_break:.3f} ± {fit.se:.3f} (95% interval {fit.ci[0]:.3f} to {fit.ci[1]:.3f}, "
+                   f"{esc(fit.method)}); {verdict}. Reference: {esc(prof.reference['text'])}. "
+                   f"Data: {esc(paths['csv'].name)}, {esc(paths['json'].name)}.")
+        parts.append(figure(paths["png"].read_bytes(), f"anneal profile of winner {e['rank']}", caption))
+        notes += [f"winner {e['rank']} profile: {c}" for c in prof.cautions if "surrogate" not in c]
+    return "".join(parts)
+
+
+def run_page(folder: Path, *, reads: int, profiles: int, profile_reads: int, profile_sweeps: int, measure: bool,
+             seed: int) -> str:
+    """The run report as one HTML string (plots also written to ``FOLDER/plots/``)."""
+    summary, records = load_run(folder)
+    run = summary["run"]
+    notes: list[str] = []
+    sections = []
+    winners = summary["winners"]
+    lead = (f"{len(winners)} winner(s) bred on <b>{esc(run['graph'])}</b> ({run['n']} spins, {run['m']} couplings, "
+            f"couplings {esc((run.get('rules') or {}).get('couplings', '?'))}) for <b>{esc(run['metric'])}</b> "
+            f"on the {esc(run['sampler'])} surrogate. Stopped after {summary['generations']} generations "
+            f"({esc(summary['stopped'])}), {summary['evaluations']} evaluations in {fmt(summary['elapsed'], 3)} s. "
+            f"Winners are re-measured on fresh seeds against their certified energy.")
+    if summary["comparison"]:
+        intervals = ratio_intervals(summary, seed)
+        notes += ratio_cautions(summary, intervals)
+        sections.append("<h2>How much harder than random instances</h2>" + _comparison_table(summary, intervals))
+        sections.append(figure(_save(plots.baseline_figure(summary), folder, "baseline.png"),
+                               "hall of fame against random baseline",
+                               f"Each dot is one instance measured in this run; bars are confidence intervals, "
+                               f"the thick line the median, open triangles bounds rather than values. Random "
+                               f"instances: {summary['baseline']['count']} of the same graph and alphabet."))
+    if records:
+        sections.append("<h2>Fitness by generation</h2>" + figure(
+            _save(plots.fitness_figure(records, run["metric"], run["sampler"]), folder, "fitness.png"),
+            "fitness by generation",
+            "Search fitness (blue) is measured with few reads and pooled over generations, so it is noisy and "
+            "optimistic; confirmed fitness (red-orange steps and diamonds) is measured again on fresh seeds and "
+            "decides the hall of fame."))
+    else:
+        notes.append("log.jsonl is missing or empty, so there is no fitness-by-generation plot.")
+    sections.append("<h2>Winners and their certificates</h2>" + (_winners_table(summary) + BOUND_NOTE if winners else
+                                                                  "<p>No candidate was confirmed.</p>"))
+    curves = []
+    for e in winners[:CURVES_SHOWN]:
+        try:
+            c = _curve(folder, e, run, reads, measure, seed, notes)
+        except InstgenError as exc:
+            notes.append(f"winner {e['rank']}: no sweep curve ({exc}).")
+            continue
+        if c:
+            curves.append(c)
+    if curves:
+        shown = f"the best {len(curves)} of {len(winners)} winners" if len(winners) > len(curves) else "every winner"
+        resid = (f"residual energy: measured afresh for this report, {reads} reads per sweep count, against the "
+                 "certified energy" if measure else "residual energy: not measured (measure=False)")
+        sections.append("<h2>Time-to-solution and residual energy against anneal length</h2>" + figure(
+            _save(plots.sweeps_figure(curves, run["sampler"]), folder, "sweeps.png"), "TTS and residual energy",
+            f"On {esc(run['sampler'])}, {shown}. TTS99 per sweep count from the run's final measurement; the star "
+            f"marks the optimum (a bound when it sits at the edge of the grid). {esc(resid)}."))
+    if profiles and winners:
+        sections.append("<h2>Anneal profiles</h2>" + _profile_section(folder, summary, profiles, profile_reads,
+                                                                      profile_sweeps, seed, notes))
+    if summary["baseline"]["instances"]:
+        sections.append("<h2>Random baseline instances</h2>" + _baseline_table(summary) + BOUND_NOTE)
+    sections.append("<h2>Run settings</h2>" + _settings_table(summary))
+    if summary.get("library"):
+        lib = summary["library"]
+        sections.append(f"<p>Winners filed into the library {esc(lib['path'])} ({lib['filed']} filed, "
+                        f"{lib['new']} new).</p>")
+    cautions = list(summary["cautions"]) + notes
+    title = f"Breeding run “{run['name']}”"
+    return page(title, lead, cautions, sections, footer_text(folder))
