@@ -257,6 +257,19 @@ def test_success_probability_matches_the_reference(order):
     assert p > ALPHA, f"success {a}/{reads} here, {b}/{reads} for the reference (p = {p:.2g})"
 
 
+@pytest.mark.parametrize("name,order", [("fast-sa", "sequential"), ("fast-sa", "random"),
+                                        ("packed-sa", "sequential"), ("packed-sa", "random")])
+def test_agrees_with_the_sa_adapter(name, order):
+    # The project's own "sa" surrogate wraps the same reference annealer; the
+    # fast samplers must be interchangeable with it at the same schedule.
+    inst = make_instance("chimera:2", "pm1", "pm1", seed=17)
+    sched = Schedule(sweeps=12, beta_range=(0.1, 3.0))
+    ours = get_sampler(name).run(inst, sched, reads=1280, seed=3, order=order).energies
+    theirs = get_sampler("sa").run(inst, sched, reads=1280, seed=3, order=order).energies
+    p = same_distribution_p(ours, theirs, discrete=True)
+    assert p > ALPHA, f"{name} and sa disagree (p = {p:.2g})"
+
+
 def test_long_schedule_finds_the_exact_ground_state():
     inst = make_instance("chimera:1", "gaussian", "gaussian:0.5", seed=2)
     batch = FastAnnealing().run(inst, Schedule(sweeps=300), reads=64, seed=1)
