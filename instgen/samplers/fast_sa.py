@@ -112,6 +112,8 @@ def stack(instances: Sequence[Instance]) -> tuple[Layout, np.ndarray, np.ndarray
     if not instances or not all(isinstance(x, Instance) for x in instances):
         raise InputError("give a non-empty list of Instance objects (candidates on one graph)")
     first = instances[0]
+    if first.n == 0:
+        raise InputError("there is nothing to anneal: the instance has no spins")
     for k, inst in enumerate(instances[1:], start=1):
         if inst.n != first.n or not np.array_equal(inst.edges, first.edges):
             raise InputError(f"all candidates must share one graph: candidate {k} has different spins or edges "

@@ -103,6 +103,26 @@ def packed_arrays(lay, J: np.ndarray, h: np.ndarray) -> dict:
     }
 
 
+def suits(rules) -> bool:
+    """Whether every instance drawn under these coupling rules has whole-number values.
+
+    For choosing a surrogate from an alphabet: ``"packed-sa"`` when this is true,
+    ``"fast-sa"`` otherwise.  (A spin whose |J| and |h| add up to more than 255 is
+    still refused at run time.)
+
+    >>> from instgen.couplings import CouplingRules
+    >>> suits(CouplingRules.make("int:3", "pm1")), suits(CouplingRules.make("gaussian"))
+    (True, False)
+    """
+    for alphabet, kind in ((rules.couplings, "couplings"), (rules.fields, "fields")):
+        if not alphabet.discrete:
+            return False
+        vals = rules.legalise(np.asarray(alphabet.values, dtype=float), kind)
+        if not np.array_equal(vals, np.round(vals)):
+            return False
+    return True
+
+
 class PackedAnnealing(Sampler):
     """Simulated annealing with 64 replicas per machine word (see the module docstring).
 

@@ -146,6 +146,8 @@ def test_run_many_refuses_bad_requests():
         s.run(a, Schedule(sweeps=5), reads=2, seed=1, order="backwards")
     with pytest.raises(InputError, match="Instance"):
         s.run_many([], Schedule(sweeps=5), reads=2)
+    with pytest.raises(InputError, match="no spins"):
+        s.run(Instance(edges=np.zeros((0, 2)), J=[], h=[]), Schedule(sweeps=5), reads=2, seed=1)
 
 
 def test_infinite_temperature_gives_zero_mean_energy():

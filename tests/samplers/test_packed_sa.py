@@ -149,6 +149,17 @@ def test_refuses_values_it_cannot_pack():
                    Schedule(sweeps=5), reads=2, seeds=[1, 2])
 
 
+def test_suits_says_which_alphabets_give_whole_numbers():
+    from instgen.couplings import CouplingRules
+
+    yes = [("pm1", "none"), ("int:3", "pm1"), ("levels:-2,1,3", "int:2")]
+    no = [("gaussian", "none"), ("levels:0.5,1", "none"), ("pm1", "uniform:-1,1"), ("pm1", "levels:0.5")]
+    assert all(packed_sa.suits(CouplingRules.make(c, f)) for c, f in yes)
+    assert not any(packed_sa.suits(CouplingRules.make(c, f)) for c, f in no)
+    # and what it promises holds: an instance drawn under int:3 / pm1 is accepted
+    PackedAnnealing().run(make_instance("chimera:1", "int:3", "pm1", seed=1), Schedule(sweeps=2), reads=1, seed=1)
+
+
 def test_compiled_once_with_one_signature():
     packed_sa.warm_up()
     for spec, coup in (("chimera:1", "pm1"), ("square:3", "int:3")):
