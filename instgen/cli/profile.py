@@ -73,6 +73,10 @@ def run(args):
     print(f"\nprogress stops near s = {fit.s_break:.3f} +- {fit.se:.3f} (95% interval {fit.ci[0]:.3f} .. "
           f"{fit.ci[1]:.3f}; {fit.method}); slope {fit.slope_before:.4g} before, {fit.slope_after:.4g} after; "
           f"R^2 {_num(fit.r2, '.3f')}")
+    late = prof.late()
+    print(f"late in the anneal (s >= {late['s']:.2f}): mean energy still falls by {late['energy_drop']:.4g} "
+          f"({late['energy_drop_per_spin']:.3g} per spin); up to {late['most_changed']:.0f} spins change between "
+          f"points; {100 * late['frozen']:.0f}% of spins already frozen")
     if fit.poor:
         print("POOR FIT: the break point is not reliable:")
         for note in fit.notes:

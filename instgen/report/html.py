@@ -44,6 +44,9 @@ def folder_kind(folder) -> str:
         return "run"
     if (folder / "index.sqlite").is_file():
         return "library"
+    if (folder / "log.jsonl").is_file():
+        raise InputError(f"{folder} holds a run that has not finished (log.jsonl but no summary.json yet); let it "
+                         "finish, or continue it with `instgen breed PRESET --out FOLDER --resume`")
     raise InputError(f"{folder} is neither a run folder (no summary.json) nor a library (no index.sqlite)")
 
 

@@ -229,7 +229,7 @@ def profile_figure(profile):
         lo, hi = (max(fit.ci[0], s[0]), min(fit.ci[1], s[-1])) if all(map(math.isfinite, fit.ci)) else (s[0], s[-1])
         ea.axvspan(lo, hi, color=PALETTE["vermillion"], alpha=0.12, lw=0)
         ea.axvline(fit.s_break, color=PALETTE["vermillion"], lw=1.2,
-                   label=f"break s = {fit.s_break:.2f} ± {fit.se:.2f}" + (" (POOR FIT)" if fit.poor else ""))
+                   label=f"break s = {fit.s_break:.3f} ± {fit.se:.3f}" + (" (POOR FIT)" if fit.poor else ""))
         ref_label = {"proven": "ground state (proven)", "planted": "ground state (planted)"}.get(
             profile.reference["status"], "lowest known energy (NOT proven)")
         ea.axhline(profile.reference["energy"], color=PALETTE["black"], lw=1, ls="-.", label=ref_label)
@@ -243,7 +243,7 @@ def profile_figure(profile):
         if np.any(~pos):
             ra.scatter(s[~pos], np.full(int(np.sum(~pos)), 0.03), marker="v", s=30, color=PALETTE["green"],
                        transform=ra.get_xaxis_transform(), clip_on=False, label="every replica at the reference")
-        ra.set_yscale("log")
+        plain_log(ra)
         ra.set_ylabel("residual energy per spin (energy units)")
         ra.set_title("Energy above the reference, per spin")
         ra.legend(frameon=False, loc="upper right")

@@ -23,6 +23,9 @@ uncertainty comes from a bootstrap over replicas (or the fit's covariance when
 only the curve is known), and the fit is called poor, plainly, when a straight
 line does about as well, the break sits at the edge of the range, the
 interval is wide, or the energy falls faster after the break than before.
+The break point summarises where the steep fall ends; it is a description of
+the curve, not a phase transition, and its uncertainty does not include the
+error of describing a smooth curve by two lines.
 """
 
 from __future__ import annotations
@@ -285,11 +288,27 @@ class Profile:
                  "median_hamming_to_previous": float(self.hamming_median[k]), "frozen_fraction": float(self.frozen[k])}
                 for k in range(self.s.size)]
 
+    def late(self, s_from: float = 0.8) -> dict:
+        """What still happens from ``s_from`` to the end: the question a quench study asks.
+
+        ``energy_drop`` is the fall of the mean energy from the first point at or
+        after ``s_from`` to the end (also per spin), ``most_changed`` the largest
+        median number of spins changed between later adjacent points, and
+        ``frozen`` the fraction of spins already frozen at that first point.
+        """
+        k = int(np.searchsorted(self.s, s_from - 1e-12))
+        k = min(k, self.s.size - 1)
+        drop = float(self.mean_energy[k] - self.mean_energy[-1])
+        changed = self.hamming_median[k + 1:]
+        return {"s": float(self.s[k]), "energy_drop": drop, "energy_drop_per_spin": drop / self.instance["n"],
+                "most_changed": float(changed.max()) if changed.size else 0.0, "frozen": float(self.frozen[k])}
+
     def to_dict(self) -> dict:
         """Plain JSON-safe data (undefined or infinite numbers become None)."""
         return _json_safe({"format": PROFILE_FORMAT, "format_version": PROFILE_VERSION, "instance": self.instance,
                            "settings": self.settings, "reference": self.reference,
-                           "break_point": self.fit.to_dict(), "points": self.rows(), "cautions": list(self.cautions)})
+                           "break_point": self.fit.to_dict(), "late_anneal": self.late(), "points": self.rows(),
+                           "cautions": list(self.cautions)})
 
 
 def _json_safe(obj):

@@ -220,8 +220,13 @@ def _profile_section(folder, summary, profiles, reads, sweeps, seed, notes) -> s
         paths = write_profile(prof, folder / PLOTS_DIR, stem)
         fit = prof.fit
         verdict = ("<strong>poor fit</strong>: " + esc("; ".join(fit.notes))) if fit.poor else "the fit is good"
+        late = prof.late()
         caption = (f"Anneal profile of winner #{e['rank']} ({esc(e['file'])}), measured for this report on the "
-                   f"path-integral surrogate. Energy stops falling at its early rate near s = "
+                   f"path-integral surrogate. From s = {late['s']:.2f} to the end the mean energy still falls by "
+                   f"{late['energy_drop']:.3g} ({late['energy_drop_per_spin']:.3g} per spin), replicas change up "
+                   f"to {late['most_changed']:.0f} spins between points (median), and "
+                   f"{100 * late['frozen']:.0f}% of spins are already frozen. Energy stops falling at its early "
+                   f"rate near s = "
                    f"{fit.s_break:.3f} ± {fit.se:.3f} (95% interval {fit.ci[0]:.3f} to {fit.ci[1]:.3f}, "
                    f"{esc(fit.method)}); {verdict}. Reference: {esc(prof.reference['text'])}. "
                    f"Data: {esc(paths['csv'].name)}, {esc(paths['json'].name)}.")
@@ -274,8 +279,8 @@ def run_page(folder: Path, *, reads: int, profiles: int, profile_reads: int, pro
             curves.append(c)
     if curves:
         shown = f"the best {len(curves)} of {len(winners)} winners" if len(winners) > len(curves) else "every winner"
-        resid = (f"residual energy: measured afresh for this report, {reads} reads per sweep count, against the "
-                 "certified energy" if measure else "residual energy: not measured (measure=False)")
+        resid = (f"Residual energy: measured afresh for this report, {reads} reads per sweep count, against each "
+                 "winner's ground-state energy as the table gives it (proven or not)" if measure else "Residual energy: not measured (measure=False)")
         sections.append("<h2>Time-to-solution and residual energy against anneal length</h2>" + figure(
             _save(plots.sweeps_figure(curves, run["sampler"]), folder, "sweeps.png"), "TTS and residual energy",
             f"On {esc(run['sampler'])}, {shown}. TTS99 per sweep count from the run's final measurement; the star "

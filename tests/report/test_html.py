@@ -241,6 +241,9 @@ def test_neither_run_nor_library_is_refused(tmp_path, capsys):
     assert main(["report", str(tmp_path / "missing")]) == 2
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and "not a folder" in err
+    (tmp_path / "log.jsonl").write_text("")
+    with pytest.raises(InputError, match="has not finished"):
+        write_report(tmp_path)
 
 
 def test_damaged_or_newer_summary_is_refused(tmp_path, capsys):

@@ -122,6 +122,10 @@ def test_profile_residual_is_measured_against_the_exact_ground_state():
     assert np.all(prof.residual_min >= -1e-9)
     assert prof.residual_mean == pytest.approx(prof.energies.mean(axis=0) - exact)
     assert not any("NOT" in c for c in prof.cautions)
+    late = prof.late(0.5)  # from the first point at or after s = 0.5 to the end
+    k = int(np.argmax(prof.s >= 0.5))
+    assert late["s"] == prof.s[k] and late["frozen"] == prof.frozen[k]
+    assert late["energy_drop"] == pytest.approx(prof.energies[:, k].mean() - prof.energies[:, -1].mean())
 
 
 def test_profile_without_a_known_optimum_says_so():
