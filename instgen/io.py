@@ -53,6 +53,7 @@ def atomic_write(path, data: str | bytes) -> Path:
     mode = "wb" if isinstance(data, bytes) else "w"
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
     try:
+        os.chmod(tmp, 0o666 & ~_umask())  # mkstemp makes 0600; give the usual permissions
         with os.fdopen(fd, mode) as fh:
             fh.write(data)
             fh.flush()
@@ -65,6 +66,12 @@ def atomic_write(path, data: str | bytes) -> Path:
             pass
         raise
     return path
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
 
 
 def _now() -> str:

@@ -41,6 +41,7 @@ def add_arguments(p):
                    help="override any preset value, e.g. --set search.elites=4 (repeatable)")
     p.add_argument("--resume", action="store_true", help="continue the run in --out from its last checkpoint")
     p.add_argument("--quiet", action="store_true", help="print nothing but errors")
+    p.add_argument("--no-report", action="store_true", help="do not write report.html at the end")
     add_json(p)
 
 
@@ -76,8 +77,17 @@ def run(args):
     show = Progress(cfg, quiet=args.quiet or args.json, stream=sys.stderr)
     with show:
         summary = breed(cfg, out=cfg["run"]["output"], executor=executor, resume=args.resume, progress=show.update)
+    if not args.no_report:
+        from ..report.html import write_report
+
+        if not (args.quiet or args.json):
+            print("writing the report (measures residual energies and an anneal profile afresh) ...",
+                  file=sys.stderr)
+        summary["report"] = str(write_report(cfg["run"]["output"]))
     if args.json:
         print_json(summary)
     elif not args.quiet:
         print_summary(summary)
+        if summary.get("report"):
+            print(f"report: {summary['report']}  (open it in a browser)")
     return 0
