@@ -13,6 +13,12 @@ meaning harder**.  Three ways to say what you want, in order of preference:
    because you named it; instgen cannot pool or interpret it beyond averaging,
    so prefer a named metric when one fits.
 
+With ``search_solvers = ["tabu", ...]`` in [fitness], every candidate is also
+measured under those solvers (same sweep counts and reads, seeds of their own)
+and its fitness is the **minimum** over all of them, so the search cannot win
+by exploiting one method's blind spot; the details name the solver that found
+the candidate easiest.
+
 Each measurement keeps the raw final energies per sweep count, so repeated
 measurements of the same candidate pool by concatenation and the value is
 recomputed from everything seen (see :func:`pool`).
@@ -70,6 +76,7 @@ class Context:
     noise_sigma: float = 0.0
     noise_copies: int = 0
     user: Any = None  # a callable, when the metric is a user function
+    solvers: tuple[str, ...] = ()  # further search solvers; the fitness is the minimum over all of them
 
     @classmethod
     def from_config(cls, cfg: dict, topology, user=None) -> Context:
@@ -89,6 +96,7 @@ class Context:
             sweeps=tuple(sorted(set(f["sweeps"]))), short_sweeps=f["short_sweeps"], long_sweeps=f["long_sweeps"],
             beta_range=beta, interpolation=f["interpolation"], scale=rules.scale,
             noise_sigma=float(f["noise_sigma"]), noise_copies=int(f["noise_copies"]), user=user,
+            solvers=tuple(x for x in dict.fromkeys(f["search_solvers"]) if x != f["sampler"]),
         )
 
     def schedule(self, sweeps: int) -> Schedule:
@@ -120,19 +128,26 @@ class Measurement:
     values: list[float] = dataclasses.field(default_factory=list)
     seconds: float = 0.0
     spin_updates: int = 0
+    by_solver: dict[str, dict[int, np.ndarray]] = dataclasses.field(default_factory=dict)  # further solvers
 
     def to_dict(self) -> dict:
-        return {"energies": {str(k): v.tolist() for k, v in self.energies.items()}, "values": list(self.values),
-                "seconds": self.seconds, "spin_updates": self.spin_updates}
+        d = {"energies": {str(k): v.tolist() for k, v in self.energies.items()}, "values": list(self.values),
+             "seconds": self.seconds, "spin_updates": self.spin_updates}
+        if self.by_solver:
+            d["by_solver"] = {s: {str(k): v.tolist() for k, v in e.items()} for s, e in self.by_solver.items()}
+        return d
 
     @classmethod
     def from_dict(cls, d: dict) -> Measurement:
         return cls({int(k): np.asarray(v, dtype=np.float64) for k, v in d["energies"].items()},
-                   [float(x) for x in d["values"]], float(d["seconds"]), int(d["spin_updates"]))
+                   [float(x) for x in d["values"]], float(d["seconds"]), int(d["spin_updates"]),
+                   {s: {int(k): np.asarray(v, dtype=np.float64) for k, v in e.items()}
+                    for s, e in d.get("by_solver", {}).items()})
 
     @property
     def min_energy(self) -> float:
-        return min((float(e.min()) for e in self.energies.values() if e.size), default=math.inf)
+        every = list(self.energies.values()) + [e for d in self.by_solver.values() for e in d.values()]
+        return min((float(e.min()) for e in every if e.size), default=math.inf)
 
 
 def pool(measurements) -> Measurement:
@@ -141,6 +156,10 @@ def pool(measurements) -> Measurement:
     for m in measurements:
         for k, e in m.energies.items():
             out.energies[k] = np.concatenate([out.energies[k], e]) if k in out.energies else e
+        for name, energies in m.by_solver.items():
+            mine = out.by_solver.setdefault(name, {})
+            for k, e in energies.items():
+                mine[k] = np.concatenate([mine[k], e]) if k in mine else e
         out.values.extend(m.values)
         out.seconds += m.seconds
         out.spin_updates += m.spin_updates
@@ -154,7 +173,9 @@ def measure(ctx: Context, J, h, seed: int, reads: int, planted=None) -> Measurem
     With ``noise_copies`` > 0, each read is split across perturbed copies of the
     couplings (Gaussian noise ``noise_sigma`` times the scale on J and h, seeded), and
     the states found are scored on the unperturbed instance: hardness that
-    survives control errors.
+    survives control errors.  Each further search solver (``ctx.solvers``) is run
+    at the same sweep counts and reads, on seeds of its own derived from ``seed``,
+    without noise; its energies go to ``Measurement.by_solver``.
     """
     inst = ctx.instance(J, h, planted)
     if ctx.user is not None:
@@ -179,6 +200,14 @@ def measure(ctx: Context, J, h, seed: int, reads: int, planted=None) -> Measurem
             out.seconds += batch.seconds
             out.spin_updates += batch.spin_updates
         out.energies[sweeps] = np.concatenate(parts)
+    for name in ctx.solvers:
+        other = get_sampler(name)
+        mine = out.by_solver.setdefault(name, {})
+        for sweeps in ctx.sweep_counts():
+            batch = other.run(inst, ctx.schedule(sweeps), reads=reads, seed=derive_seed(seed, "solver", name, sweeps))
+            mine[sweeps] = batch.energies
+            out.seconds += batch.seconds
+            out.spin_updates += batch.spin_updates
     return out
 
 
@@ -250,6 +279,22 @@ def value(ctx: Context, m: Measurement, reference: float | None) -> tuple[float,
     if ctx.user is not None:
         return float(np.mean(m.values)), {"values": len(m.values)}
     ref = m.min_energy if reference is None else reference
+    if ctx.solvers:
+        return _least_over_solvers(ctx, m, ref)
+    return _value_of(ctx, m, ref)
+
+
+def _least_over_solvers(ctx: Context, m: Measurement, ref: float) -> tuple[float, dict]:
+    """The fitness under the solver that finds the candidate easiest (hardness is no one method's blind spot)."""
+    per = {ctx.sampler: _value_of(ctx, m, ref)}
+    for name in ctx.solvers:
+        per[name] = _value_of(ctx, Measurement(energies=m.by_solver.get(name, {})), ref)
+    easiest = min(per, key=lambda k: (per[k][0], k))
+    v, d = per[easiest]
+    return v, {**d, "solver": easiest, "per_solver": {k: x[0] for k, x in per.items()}}
+
+
+def _value_of(ctx: Context, m: Measurement, ref: float) -> tuple[float, dict]:
     if ctx.metric == "composite":
         total, details = 0.0, {}
         for name, w in ctx.weights.items():
@@ -306,4 +351,14 @@ def check_fitness(f: dict) -> None:
                           "composite, or package.module:function")
     if f["sampler"] not in SAMPLERS:
         raise ConfigError(f"[fitness] unknown sampler {f['sampler']!r}; choose one of: {', '.join(SAMPLERS.names())}")
+    for name in f.get("search_solvers") or []:
+        if name not in SAMPLERS:
+            raise ConfigError(f"[fitness] search_solvers: unknown sampler {name!r}; choose from: "
+                              f"{', '.join(SAMPLERS.names())}")
+        if getattr(SAMPLERS.get(name), "enumerates", False):
+            raise ConfigError(f"[fitness] search_solvers: {name!r} lists states instead of sampling; it cannot "
+                              "measure hardness")
+    if f.get("search_solvers") and ":" in metric:
+        raise ConfigError("[fitness] search_solvers needs a named metric; a fitness function measures "
+                          "what it likes itself")
 

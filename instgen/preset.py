@@ -88,6 +88,8 @@ SCHEMA: dict[str, dict[str, tuple]] = {
         "cap": ((int, float), None, _pos),
         "alpha": ((int, float), 0.5, _pos),
         "mix": (list, None, None),
+        "terms": (dict, None, None),
+        "patch_size": (int, 8, _count(2, 16)),
     },
     "fitness": {
         "metric": (str, "tts", None),
@@ -102,6 +104,7 @@ SCHEMA: dict[str, dict[str, tuple]] = {
         "reference": (str, "auto", None),
         "confirm_reads": (int, 256, _count(1, 1_000_000)),
         "solvers": (list, [], _str_list),
+        "search_solvers": (list, [], _str_list),
         "noise_sigma": ((int, float), 0.0, _nonneg),
         "noise_copies": (int, 0, _count(0, 1000)),
     },
@@ -216,11 +219,22 @@ def validate(raw: dict, where: str = "preset") -> dict:
 
 def _check_planting(cfg):
     method = cfg["planting"]["method"]
+    terms = cfg["planting"]["terms"]
+    if terms is not None and method != "terms":
+        raise ConfigError(f"[planting] terms applies to method = \"terms\", not {method!r}")
     if method == "none":
         return
     from .planted import PLANTED
 
     PLANTED.get(method)
+    if terms is not None:
+        from .make import topology
+        from .planted.terms import _parse_kinds, check_shapes
+
+        try:
+            check_shapes(topology(cfg["graph"]["spec"]), _parse_kinds(terms))
+        except InstgenError as exc:
+            raise ConfigError(f"[planting] terms: {exc}") from None
 
 
 def load_preset(path) -> dict:

@@ -43,7 +43,7 @@ from ..seeds import derive_seed
 from .checkpoint import load_checkpoint, save_checkpoint
 from .executors import SerialExecutor, make_executor
 from ..library.fingerprint import fingerprint
-from .genome import FreeGenome, genome_from_dict
+from .genome import PLANTED_GENOMES, FreeGenome, genome_from_dict, planted_genome
 from .operators import Variation, Variator, default_operators
 
 #: Keys that may change between a run and its resume (they decide when to stop).
@@ -130,10 +130,11 @@ class Breeder:
                               precision=c["precision"])
         self.ctx = Context.from_config(cfg, self.topology, user=fitness)
         self.planting = cfg["planting"]["method"]
-        self.kind = "loops" if self.planting == "loops" else "free"
-        if self.planting not in ("none", "loops"):
+        self.kind = self.planting if self.planting in PLANTED_GENOMES else "free"
+        if self.planting != "none" and self.planting not in PLANTED_GENOMES:
             raise ConfigError(f"[planting] method {self.planting!r} cannot be bred yet; breeding supports "
-                              "none (free couplings) and loops (planted frustrated loops)")
+                              "none (free couplings), loops (planted frustrated loops) and terms (loops and "
+                              "small frustrated patches)")
         s = cfg["search"]
         weights = s["operators"] or default_operators(self.kind, self.rules)
         self.var = Variation(self.rules, self.topology.n, self.topology.edges, s["mutation_rate"],
@@ -175,10 +176,8 @@ class Breeder:
         return cert.energy
 
     def _new_random(self) -> object:
-        if self.kind == "loops":
-            from .loops import LoopGenome
-
-            return LoopGenome.random(self.var, self.rng)
+        if self.kind != "free":
+            return planted_genome(self.kind).random(self.var, self.rng)
         J = self.rules.sample_couplings(self.topology.m, self.rng)
         h = self.rules.sample_fields(self.topology.n, self.rng)
         return FreeGenome(J, h)

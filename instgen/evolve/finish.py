@@ -68,9 +68,12 @@ def _measure(inst, cfg, ctx, seed):
 
 
 def _entry(inst, cert, scores, path=None) -> dict:
+    con = inst.metadata.get("construction")
     return {
         "file": None if path is None else path.name,
         "n": inst.n, "m": inst.m,
+        "planted_energy": inst.planted_energy if inst.planted is not None else None,
+        "construction": con.get("family") if isinstance(con, dict) else None,
         "certificate": {"energy": cert.energy, "method": cert.method, "status": cert.status,
                         "seconds": cert.seconds, "ground_states": cert.ground_states},
         "scores": [s.to_dict() for s in scores],

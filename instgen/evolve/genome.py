@@ -9,6 +9,8 @@ checkpoints as JSON.
 * :class:`LoopGenome` (in :mod:`instgen.evolve.loops`): a set of frustrated
   loops in a fixed planted gauge; every child keeps the planted state as a
   ground state.
+* :class:`TermGenome` (in :mod:`instgen.evolve.terms`): loops and small
+  frustrated patches, each with the planted state as a ground state.
 """
 
 from __future__ import annotations
@@ -55,14 +57,24 @@ class FreeGenome:
         return cls(np.asarray(d["J"], dtype=np.float64), np.asarray(d["h"], dtype=np.float64))
 
 
+#: Planted genomes by [planting] method (each keeps its proof under every operator).
+PLANTED_GENOMES = {"loops": ("instgen.evolve.loops", "LoopGenome"), "terms": ("instgen.evolve.terms", "TermGenome")}
+
+
+def planted_genome(kind: str):
+    """The genome class bred for planting method ``kind`` (``loops`` or ``terms``)."""
+    import importlib
+
+    module, name = PLANTED_GENOMES[kind]
+    return getattr(importlib.import_module(module), name)
+
+
 def genome_from_dict(d: dict, var=None):
-    """Rebuild a genome from its checkpoint dict (``var``: the run's Variation, for loop genomes)."""
+    """Rebuild a genome from its checkpoint dict (``var``: the run's Variation, for planted genomes)."""
     if d.get("kind") == "free":
         return FreeGenome.from_dict(d)
-    if d.get("kind") == "loops":
-        from .loops import LoopGenome
-
-        return LoopGenome.from_dict(d, var)
+    if d.get("kind") in PLANTED_GENOMES:
+        return planted_genome(d["kind"]).from_dict(d, var)
     from ..errors import FormatError
 
     raise FormatError(f"unknown genome kind {d.get('kind')!r} in checkpoint")

@@ -185,6 +185,10 @@ def default_operators(genome_kind: str, rules: CouplingRules) -> dict[str, float
     """Operator weights used when a preset names none."""
     if genome_kind == "loops":
         return {"add-loop": 1.0, "remove-loop": 1.0, "reroute-loop": 1.0, "reweight-loop": 0.5, "mix-loops": 0.5}
+    if genome_kind == "terms":
+        from .terms import TERM_OPERATORS
+
+        return dict(TERM_OPERATORS)
     ops = {"resample": 1.0, "uniform": 0.5, "block": 0.5}
     if rules.couplings.kind != "pm1":
         ops["sign-flip"] = 0.5
@@ -201,8 +205,8 @@ def check_operator_rates(ops, cfg) -> None:
         return
     if not isinstance(ops, dict) or not ops:
         raise ConfigError("[search] operators must be a table of name = weight")
-    kind = "loops" if cfg["planting"]["method"] == "loops" else "free"
-    if kind == "loops":
+    kind = cfg["planting"]["method"] if cfg["planting"]["method"] in ("loops", "terms") else "free"
+    if kind != "free":
         _ensure_loop_operators()
     mutations = 0
     for name, weight in ops.items():
@@ -224,8 +228,8 @@ def check_operator_rates(ops, cfg) -> None:
 
 
 def _ensure_loop_operators():
-    """Loop operators register themselves on import."""
-    from . import loops  # noqa: F401
+    """Loop and term operators register themselves on import."""
+    from . import loops  # noqa: F401  (imports .terms too)
 
 
 class Variator:

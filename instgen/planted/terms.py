@@ -234,6 +234,14 @@ def _cliques(topology, limit: int = 200_000):
 _GROUPS = {"cell": _cells, "tile": _tiles, "clique": _cliques}
 
 
+def check_shapes(topology, kinds) -> None:
+    """InputError naming the shapes that fit, when a requested patch shape has no site on ``topology``."""
+    for shape in kinds:
+        if shape in SHAPES and shape != "ball" and not _GROUPS[shape](topology):
+            raise InputError(f"the graph {topology.spec} has no {shape} sites; patch shapes that fit it: "
+                             f"{', '.join(applicable_shapes(topology))}")
+
+
 def applicable_shapes(topology) -> list[str]:
     """The patch shapes that have sites on ``topology`` (``ball`` always does)."""
     return [s for s in SHAPES if s == "ball" or _GROUPS[s](topology)]
@@ -258,13 +266,16 @@ def local_pairs(spins, edges, topology_edges) -> np.ndarray:
         raise InputError("a patch edge has an end outside the patch's spins") from None
 
 
-def draw_patch(shape: str, spins, edges, topology_edges, rng, weights=(1.0,), keep: float = 1.0) -> Patch:
+def draw_patch(shape: str, spins, edges, topology_edges, rng, weights=(1.0,), keep: float = 1.0,
+               pairs=None) -> Patch:
     """A random patch on a site: random couplings gauged by one of their ground states.
 
     Each edge of the site gets ±w (w drawn from ``weights``, sign at random)
     with probability ``keep``, else 0; the patch's 2^k states are enumerated,
     one ground state g is chosen at random, and every coupling J_ab becomes
-    g_a g_b J_ab, so all +1 is a ground state of the result.
+    g_a g_b J_ab, so all +1 is a ground state of the result.  ``pairs`` (the
+    edges' ends as positions in ``spins``, see :func:`local_pairs`) may be
+    given to save recomputing them.
 
     >>> p = draw_patch("tile", (0, 1, 2, 3), (0, 1, 2, 3), [[0, 1], [1, 2], [2, 3], [0, 3]], 1)
     >>> ground_state_ok([[0, 1], [1, 2], [2, 3], [0, 3]], p.values(), 4)
@@ -275,7 +286,7 @@ def draw_patch(shape: str, spins, edges, topology_edges, rng, weights=(1.0,), ke
     k = len(spins)
     if not 2 <= k <= MAX_PATCH_SPINS:
         raise InputError(f"a patch needs 2 to {MAX_PATCH_SPINS} spins, got {k}")
-    pairs = local_pairs(spins, edges, topology_edges)
+    pairs = local_pairs(spins, edges, topology_edges) if pairs is None else pairs
     w = np.asarray(weights, dtype=np.float64)
     vals = w[rng.integers(w.size, size=len(edges))] * (2 * rng.integers(0, 2, size=len(edges)) - 1)
     vals = vals * (rng.random(len(edges)) < keep)

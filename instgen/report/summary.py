@@ -29,6 +29,20 @@ def score_text(s: dict) -> str:
     return text
 
 
+def _table(w, entries, solvers, heads) -> None:
+    """One line per instance: optimum, how it is known, the first metric under every solver."""
+    metric = next((e["scores"][0]["metric"] for e in entries if e["scores"]), "-")
+    w(f"{'#':>2}  {'file':<26} {'optimum':>10}  {'how known':<22}"
+      + "".join(f"  {s + ' ' + metric:<30}" for s in solvers) + "\n")
+    for e, head in zip(entries, heads):
+        c = e["certificate"]
+        line = f"{head} {c['energy']:>10.6g}  {c['method'] + ' (' + c['status'] + ')':<22}"
+        for solver in solvers:
+            sc = next((s for s in e["scores"] if s["solver"] == solver and s["metric"] == metric), None)
+            line += f"  {score_text(sc) if sc else '-':<30}"
+        w(line + "\n")
+
+
 def print_summary(summary: dict, stream=None) -> None:
     out = stream or sys.stdout
     run = summary["run"]
@@ -40,20 +54,24 @@ def print_summary(summary: dict, stream=None) -> None:
       f"against the certified energy\n\n")
     winners = summary["winners"]
     if winners:
-        solvers = run["solvers"]
-        head = f"{'#':>2}  {'file':<26} {'optimum':>10}  {'how known':<22}"
-        w(head + "".join(f"  {s + ' ' + winners[0]['scores'][0]['metric']:<30}" for s in solvers) + "\n")
-        for e in winners:
-            c = e["certificate"]
-            how = f"{c['method']} ({c['status']})"
-            line = f"{e['rank']:>2}  {e['file']:<26} {c['energy']:>10.6g}  {how:<22}"
-            first_metric = e["scores"][0]["metric"]
-            for solver in solvers:
-                sc = next((s for s in e["scores"] if s["solver"] == solver and s["metric"] == first_metric), None)
-                line += f"  {score_text(sc) if sc else '-':<30}"
-            w(line + "\n")
+        _table(w, winners, run["solvers"], [f"{e['rank']:>2}  {e['file']:<26}" for e in winners])
+        planted = [e for e in winners if e.get("planted_energy") is not None]
+        if planted:
+            w(f"planted energies (the construction's proof, re-checked): "
+              + ", ".join(f"#{e['rank']} {e['planted_energy']:.6g}" for e in planted) + "\n")
     else:
         w("no winners were confirmed.\n")
+    base = summary["baseline"]
+    if base["instances"]:
+        w(f"\nrandom baseline ({base['count']} instances of the same graph and alphabet, same run and settings):\n")
+        _table(w, base["instances"], run["solvers"], [f"{'r' + str(k):>2}  {'(not kept)':<26}"
+                                                      for k in range(1, len(base["instances"]) + 1)])
+        if base["certified"] < base["count"]:
+            w(f"note: {base['count'] - base['certified']} of {base['count']} baseline reference energies are NOT "
+              "certified (lowest energy found, not a proof); a lower state would make those instances harder "
+              "than shown.\n")
+        else:
+            w("note: every baseline reference energy is certified.\n")
     if summary["comparison"]:
         w(f"\nagainst {summary['baseline']['count']} random instances of the same graph and alphabet, same run:\n")
         for r in summary["comparison"]:
