@@ -82,6 +82,8 @@ def certify(instance: Instance, method: str = "auto", time_limit: float = 60.0, 
         raise InputError(f"unknown certification method {method!r}; choose one of: {', '.join(CHOICES)}")
     if not (isinstance(time_limit, (int, float)) and np.isfinite(time_limit) and time_limit > 0):
         raise InputError(f"time_limit must be a positive number of seconds, got {time_limit!r}")
+    if not (isinstance(memory_limit, (int, float)) and np.isfinite(memory_limit) and memory_limit > 0):
+        raise InputError(f"memory_limit must be a positive number of bytes, got {memory_limit!r}")
     t0 = time.perf_counter()
     ctx = {"t0": t0, "limit": float(time_limit), "seed": seed, "memory": memory_limit, "count": count_limit}
     cert = _auto(instance, ctx) if method == "auto" else METHODS.get(method)(instance, ctx)

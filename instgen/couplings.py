@@ -24,13 +24,19 @@ from .errors import InputError
 from .seeds import as_generator
 
 
+#: Sizes accepted for alphabet values, ranges and precisions: far beyond any processor, yet
+#: small enough that sums, differences and quotients of them never overflow a float.
+MAX_MAGNITUDE = 1e100
+MIN_STEP = 1e-100
+
+
 def _floats(text, what):
     try:
         vals = [float(x) for x in text.split(",") if x.strip()]
     except ValueError:
         raise InputError(f"{what}: expected numbers separated by commas, got {text!r}") from None
-    if not all(math.isfinite(v) for v in vals):
-        raise InputError(f"{what}: values must be finite numbers")
+    if not all(math.isfinite(v) and abs(v) <= MAX_MAGNITUDE for v in vals):
+        raise InputError(f"{what}: values must be finite numbers no larger than {MAX_MAGNITUDE:g} in size")
     return vals
 
 
@@ -148,8 +154,9 @@ class CouplingRules:
         fa = fields if isinstance(fields, Alphabet) else Alphabet.parse(fields or "none", allow_none=True)
         for name, val in (("coupling range", coupling_range), ("field range", field_range), ("precision", precision)):
             if val is not None and (not isinstance(val, (int, float)) or isinstance(val, bool)
-                                    or not math.isfinite(val) or val <= 0):
-                raise InputError(f"{name} must be a positive number, got {val!r}")
+                                    or not MIN_STEP <= val <= MAX_MAGNITUDE):
+                raise InputError(f"{name} must be a positive number between {MIN_STEP:g} and {MAX_MAGNITUDE:g}, "
+                                 f"got {val!r}")
         rules = cls(ca, fa, coupling_range, field_range, precision)
         rules._check_fits(ca, coupling_range, "couplings")
         rules._check_fits(fa, field_range, "fields")

@@ -22,6 +22,14 @@ class ConfigError(InstgenError):
     """A preset or configuration value is unknown or out of range."""
 
 
+class WriteError(InstgenError, OSError):
+    """A file could not be written (disk full, no permission, a folder in the way).
+
+    Raised after the temporary file is removed, so the file that was there
+    before is unchanged.  Also an :class:`OSError`, for callers that catch those.
+    """
+
+
 class ResourceError(InstgenError):
     """A request would need absurd time or memory on this machine; refused up front."""
 

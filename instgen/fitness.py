@@ -351,6 +351,11 @@ def check_fitness(f: dict) -> None:
                           "composite, or package.module:function")
     if f["sampler"] not in SAMPLERS:
         raise ConfigError(f"[fitness] unknown sampler {f['sampler']!r}; choose one of: {', '.join(SAMPLERS.names())}")
+    for key in ("sampler", "solvers"):
+        for name in [f[key]] if key == "sampler" else f.get(key) or []:
+            if name in SAMPLERS and getattr(SAMPLERS.get(name), "enumerates", False):
+                raise ConfigError(f"[fitness] {key}: {name!r} lists states instead of sampling; it cannot "
+                                  "measure hardness")
     for name in f.get("search_solvers") or []:
         if name not in SAMPLERS:
             raise ConfigError(f"[fitness] search_solvers: unknown sampler {name!r}; choose from: "

@@ -361,7 +361,11 @@ def _parse_amount(key, text):
             raise InputError(f"{key}: cannot read the list {text!r}") from None
         if not isinstance(val, list):
             raise InputError(f"{key}: expected a list, got {text!r}")
-        return [tuple(v) if isinstance(v, list) else v for v in val]
+        if key == "dead-edges":
+            if any(not isinstance(v, list) or len(v) != 2 for v in val):
+                raise InputError(f"{key}: each dead edge is a pair of node labels [u, v], got {text!r}")
+            return [tuple(_fault_label(x, key) for x in v) for v in val]
+        return [_fault_label(v, key) for v in val]
     try:
         val = float(text)
     except ValueError:
@@ -369,6 +373,15 @@ def _parse_amount(key, text):
     if val < 0 or not math.isfinite(val) or (val >= 1 and val != int(val)):
         raise InputError(f"{key} must be a whole count or a fraction in [0, 1), got {text!r}")
     return int(val) if val >= 1 else val
+
+
+def _fault_label(v, key):
+    """A node label from a fault list: whole numbers and strings, lists of them as tuples."""
+    if isinstance(v, list):
+        return tuple(_fault_label(x, key) for x in v)
+    if isinstance(v, (int, str)) and not isinstance(v, bool):
+        return v
+    raise InputError(f"{key}: node labels are whole numbers, strings or lists of them, got {v!r}")
 
 
 def parse_spec(spec: str) -> tuple[str, list[str], Faults]:
@@ -449,6 +462,25 @@ def estimate_size(spec: str) -> tuple[int, int]:
     return GRAPHS.get(family).estimate(args)
 
 
+def check_size(spec: str) -> tuple[int, int]:
+    """Parse ``spec`` and refuse it up front (ResourceError) when it is too large to build.
+
+    Returns the estimates (nodes, edges).
+
+    >>> check_size("chimera:4000")  # doctest: +ELLIPSIS
+    Traceback (most recent call last):
+    ...
+    instgen.errors.ResourceError: chimera:4000 would have about 128,000,000 nodes and ...
+    """
+    n_est, m_est = estimate_size(spec)
+    if n_est > MAX_NODES or m_est > MAX_EDGES:
+        raise ResourceError(
+            f"{spec} would have about {n_est:,} nodes and {m_est:,} edges; instgen builds graphs of at most "
+            f"{MAX_NODES:,} nodes and {MAX_EDGES:,} edges"
+        )
+    return n_est, m_est
+
+
 def build_graph(spec: str) -> Topology:
     """Build the graph named by ``spec`` (see the module docstring).
 
@@ -457,12 +489,7 @@ def build_graph(spec: str) -> Topology:
     """
     family, args, faults = parse_spec(spec)
     fam = GRAPHS.get(family)
-    n_est, m_est = fam.estimate(args)
-    if n_est > MAX_NODES or m_est > MAX_EDGES:
-        raise ResourceError(
-            f"{spec} would have about {n_est:,} nodes and {m_est:,} edges; instgen builds graphs of at most "
-            f"{MAX_NODES:,} nodes and {MAX_EDGES:,} edges"
-        )
+    check_size(spec)
     G, coords = fam.build(args)
     labels_before = list(G.nodes)
     G = apply_faults(G, faults)

@@ -83,8 +83,14 @@ class Instance:
         if edges.size and not np.issubdtype(edges.dtype, np.integer):
             if not np.all(np.equal(np.mod(edges, 1), 0)):
                 raise InputError("edges must hold integer spin indices")
+        if edges.size and (edges.min() < 0 or edges.max() > np.iinfo(np.int32).max):
+            raise InputError("an edge refers to a negative spin index or one beyond 2**31 - 1")
         edges = edges.astype(np.int32)
-        J = np.asarray(self.J, dtype=np.float64).reshape(-1)
+        try:
+            J = np.asarray(self.J, dtype=np.float64).reshape(-1)
+            h = None if self.h is None else np.asarray(self.h, dtype=np.float64).reshape(-1)
+        except (TypeError, ValueError, OverflowError):
+            raise InputError("couplings and fields must be numbers that fit a float") from None
         if J.shape[0] != edges.shape[0]:
             raise InputError(f"J has {J.shape[0]} values but there are {edges.shape[0]} edges")
         n = self.n
@@ -98,11 +104,16 @@ class Instance:
         n = int(n)
         if n < 0:
             raise InputError(f"n must be non-negative, got {n}")
-        h = np.zeros(n) if self.h is None else np.asarray(self.h, dtype=np.float64).reshape(-1)
+        h = np.zeros(n) if h is None else h
         if h.shape[0] != n:
             raise InputError(f"h has {h.shape[0]} values but the instance has {n} spins")
         if not np.all(np.isfinite(J)) or not np.all(np.isfinite(h)):
             raise InputError("couplings and fields must be finite numbers (found NaN or infinity)")
+        with np.errstate(over="ignore"):
+            total = np.abs(J).sum() + np.abs(h).sum()
+        if not np.isfinite(total):
+            raise InputError("couplings and fields are so large that energies would overflow "
+                             "(the sum of |J| and |h| is not a finite number)")
         if edges.size:
             if edges.min() < 0 or edges.max() >= n:
                 raise InputError(f"an edge refers to a spin outside 0..{n - 1}")

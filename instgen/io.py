@@ -32,7 +32,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import FormatError, InputError
+from .errors import FormatError, InputError, InstgenError, WriteError
 from .instance import Instance
 
 FORMAT_NAME = "instgen-instance"
@@ -46,12 +46,21 @@ def atomic_write(path, data: str | bytes) -> Path:
     """Write ``data`` to ``path`` through a temporary file and a rename.
 
     A crash leaves either the old file or the new one, never half of one.
+
+    Raises
+    ------
+    WriteError
+        When the file cannot be written (disk full, no permission, a folder
+        in the way); the temporary file is removed and the old file is kept.
     """
     path = Path(path)
-    if path.parent and not path.parent.exists():
-        path.parent.mkdir(parents=True, exist_ok=True)
     mode = "wb" if isinstance(data, bytes) else "w"
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        if path.parent and not path.parent.exists():
+            path.parent.mkdir(parents=True, exist_ok=True)
+        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    except OSError as exc:
+        raise WriteError(f"cannot write {path}: {exc.strerror or exc}; nothing was written") from None
     try:
         os.chmod(tmp, 0o666 & ~_umask())  # mkstemp makes 0600; give the usual permissions
         with os.fdopen(fd, mode) as fh:
@@ -59,11 +68,14 @@ def atomic_write(path, data: str | bytes) -> Path:
             fh.flush()
             os.fsync(fh.fileno())
         os.replace(tmp, path)
-    except BaseException:
+    except BaseException as exc:
         try:
             os.unlink(tmp)
         except OSError:
             pass
+        if isinstance(exc, OSError) and not isinstance(exc, WriteError):
+            raise WriteError(f"cannot write {path}: {exc.strerror or exc}; "
+                             "any file that was there is unchanged") from None
         raise
     return path
 
@@ -135,8 +147,8 @@ def instance_from_dict(doc, where: str = "instance") -> Instance:
     if missing:
         raise FormatError(f"{where}: missing field(s) {', '.join(missing)}")
     n = doc["n"]
-    if not isinstance(n, int) or isinstance(n, bool) or n < 0:
-        raise FormatError(f"{where}: 'n' must be a non-negative whole number")
+    if not isinstance(n, int) or isinstance(n, bool) or n < 1:
+        raise FormatError(f"{where}: 'n' must be a positive whole number (an instance needs at least one spin)")
     for key in ("labels", "edges", "J", "h"):
         if not isinstance(doc[key], list):
             raise FormatError(f"{where}: '{key}' must be a list")
@@ -151,7 +163,7 @@ def instance_from_dict(doc, where: str = "instance") -> Instance:
             raise ValueError
         if doc["edges"] and not all(isinstance(x, int) and not isinstance(x, bool) for e in doc["edges"] for x in e):
             raise ValueError
-    except (ValueError, TypeError):
+    except (ValueError, TypeError, OverflowError):
         raise FormatError(f"{where}: 'edges' must be a list of [i, j] pairs of whole numbers") from None
     for key in ("J", "h"):
         if not all(isinstance(x, (int, float)) and not isinstance(x, bool) for x in doc[key]):
@@ -162,6 +174,7 @@ def instance_from_dict(doc, where: str = "instance") -> Instance:
     meta = doc.get("metadata", {})
     if not isinstance(meta, dict):
         raise FormatError(f"{where}: 'metadata' must be an object")
+    _check_metadata(meta, n, where)
     prov = doc.get("provenance", {})
     if not isinstance(prov, dict):
         raise FormatError(f"{where}: 'provenance' must be an object")
@@ -173,6 +186,46 @@ def instance_from_dict(doc, where: str = "instance") -> Instance:
                         planted=planted, metadata={**meta, "provenance": prov})
     except InputError as exc:
         raise FormatError(f"{where}: {exc}") from None
+
+
+def _check_metadata(meta: dict, n: int, where: str) -> None:
+    """The metadata keys instgen reads back (see DEVELOPERS.md) must have their documented shapes."""
+    from .couplings import CouplingRules
+    from .records import Certificate
+
+    def bad(key, what):
+        raise FormatError(f"{where}: metadata '{key}' {what}")
+
+    rules = meta.get("rules")
+    if rules is not None:
+        if not isinstance(rules, dict):
+            bad("rules", "must be an object of coupling rules")
+        try:
+            CouplingRules.from_dict(rules)
+        except (InstgenError, TypeError) as exc:
+            bad("rules", f"is not a valid set of coupling rules ({exc})")
+    cert = meta.get("certificate")
+    if cert is not None:
+        if not isinstance(cert, dict) or not {"energy", "state", "method", "status"} <= set(cert):
+            bad("certificate", "must be an object with energy, state, method and status")
+        energy, state = cert["energy"], cert["state"]
+        if isinstance(energy, bool) or not isinstance(energy, (int, float)) or not np.isfinite(energy):
+            bad("certificate", "must hold a finite energy")
+        if (not isinstance(state, list) or len(state) != n
+                or any(isinstance(x, bool) or x not in (-1, 1) for x in state)):
+            bad("certificate", f"must hold a state of {n} values of -1 or +1")
+        if cert["status"] not in Certificate.STATUSES or not isinstance(cert["method"], str):
+            bad("certificate", f"must have a status among {', '.join(Certificate.STATUSES)} and a method name")
+    scores = meta.get("scores")
+    if scores is not None and (not isinstance(scores, list)
+                               or any(not isinstance(s, dict) or not isinstance(s.get("metric"), str) for s in scores)):
+        bad("scores", "must be a list of score records, each naming its metric")
+    tags = meta.get("tags")
+    if tags is not None and (not isinstance(tags, list) or any(not isinstance(t, str) for t in tags)):
+        bad("tags", "must be a list of strings")
+    con = meta.get("construction")
+    if con is not None and not isinstance(con, dict):
+        bad("construction", "must be an object")
 
 
 def loads_instance(text: str, where: str = "instance") -> Instance:

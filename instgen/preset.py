@@ -39,6 +39,12 @@ def _prob(v):
     return None if 0 <= v <= 1 else "must lie in [0, 1]"
 
 
+def _upto(hi):
+    def check(v):
+        return None if 0 < v <= hi else f"must be positive and at most {hi:g}"
+    return check
+
+
 def _count(lo, hi):
     def check(v):
         return None if lo <= v <= hi else f"must lie between {lo} and {hi}"
@@ -54,8 +60,8 @@ def _sweep_list(v):
 
 
 def _pair(v):
-    if len(v) != 2 or any(not isinstance(x, (int, float)) or isinstance(x, bool) or not x > 0 for x in v):
-        return "must be two positive numbers [hot, cold]"
+    if len(v) != 2 or any(not isinstance(x, (int, float)) or isinstance(x, bool) or not 0 < x < _INF for x in v):
+        return "must be two positive finite numbers [hot, cold]"
     return None
 
 
@@ -63,12 +69,20 @@ def _str_list(v):
     return None if all(isinstance(x, str) for x in v) else "must be a list of strings"
 
 
+def _tag_list(v):
+    return None if all(isinstance(x, str) and x.strip() for x in v) else "must be a list of non-empty strings"
+
+
+def _nonempty(v):
+    return None if v.strip() else "must not be empty"
+
+
 SCHEMA: dict[str, dict[str, tuple]] = {
     "run": {
         "name": (str, "run", None),
         "seed": (int, 0, _nonneg),
-        "output": (str, "outputs/run", None),
-        "format_version": (int, FORMAT_VERSION, None),
+        "output": (str, "outputs/run", _nonempty),
+        "format_version": (int, FORMAT_VERSION, _pos),
         "description": (str, "", None),
     },
     "graph": {
@@ -83,10 +97,10 @@ SCHEMA: dict[str, dict[str, tuple]] = {
     },
     "planting": {
         "method": (str, "none", None),
-        "density": ((int, float), 0.3, _pos),
+        "density": ((int, float), 0.3, _upto(100)),
         "min_length": (int, 4, _count(3, 10_000)),
         "cap": ((int, float), None, _pos),
-        "alpha": ((int, float), 0.5, _pos),
+        "alpha": ((int, float), 0.5, _upto(100)),
         "mix": (list, None, None),
         "terms": (dict, None, None),
         "patch_size": (int, 8, _count(2, 16)),
@@ -130,7 +144,7 @@ SCHEMA: dict[str, dict[str, tuple]] = {
         "certify": (str, "auto", None),
         "time_limit": ((int, float), 60.0, _pos),
         "baseline": (int, 8, _count(0, 10_000)),
-        "tags": (list, [], _str_list),
+        "tags": (list, [], _tag_list),
     },
 }
 
@@ -150,7 +164,7 @@ def _check_value(table, key, value):
         words = {int: "whole number", float: "number", str: "string", list: "list", dict: "table"}
         names = words[types] if isinstance(types, type) else "number"
         raise ConfigError(f"{where} must be a {names}, got {value!r}")
-    if isinstance(value, float) and not math.isfinite(value) and key != "target":
+    if isinstance(value, float) and (math.isnan(value) or (math.isinf(value) and key != "target")):
         raise ConfigError(f"{where} must be a finite number, got {value!r}")
     if check is not None:
         problem = check(value)
@@ -161,12 +175,13 @@ def _check_value(table, key, value):
 
 def _check_names(cfg):
     """Values that must name something registered: checked against the registries."""
+    from .certify import CHOICES
     from .couplings import CouplingRules
-    from .graphs import parse_spec
+    from .graphs import check_size
     from .samplers import SAMPLERS
 
     try:
-        parse_spec(cfg["graph"]["spec"])
+        check_size(cfg["graph"]["spec"])
         c = cfg["couplings"]
         CouplingRules.make(c["alphabet"], c["fields"], c["range"], c["field_range"], c["precision"])
     except InstgenError as exc:
@@ -185,6 +200,8 @@ def _check_names(cfg):
     s = cfg["search"]
     if s["elites"] >= s["population"]:
         raise ConfigError(f"[search] elites ({s['elites']}) must be fewer than the population ({s['population']})")
+    if cfg["library"]["certify"] not in CHOICES:
+        raise ConfigError(f"[library] certify must be one of: {', '.join(CHOICES)}; got {cfg['library']['certify']!r}")
     if cfg["run"]["format_version"] > FORMAT_VERSION:
         raise ConfigError(f"[run] format_version {cfg['run']['format_version']} is newer than this instgen reads "
                           f"({FORMAT_VERSION}); upgrade instgen")
@@ -250,6 +267,10 @@ def load_preset(path) -> dict:
         raise ConfigError(f"{path} is not a text file") from None
     except tomllib.TOMLDecodeError as exc:
         raise ConfigError(f"{path}: not valid TOML: {exc}") from None
+    except RecursionError:
+        raise ConfigError(f"{path}: nested too deeply to be a preset") from None
+    except OSError as exc:
+        raise ConfigError(f"{path}: cannot read the preset ({exc.strerror or exc})") from None
     return validate(raw, str(path))
 
 
@@ -258,6 +279,8 @@ def _parse_override_value(text: str):
         return tomllib.loads(f"v = {text}")["v"]
     except tomllib.TOMLDecodeError:
         return text  # a bare word is a string
+    except RecursionError:
+        raise ConfigError(f"the override value {text[:40]!r}... is nested too deeply") from None
 
 
 def override(cfg: dict, assignments) -> dict:

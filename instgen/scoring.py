@@ -36,7 +36,8 @@ from collections.abc import Callable, Sequence
 import numpy as np
 
 from . import metrics as M
-from .errors import InputError
+from .errors import InputError, ResourceError
+from .exact import duration
 from .instance import Instance
 from .records import SampleBatch, Score
 from .registry import Registry
@@ -44,6 +45,14 @@ from .samplers import SAMPLERS, Schedule, default_beta_range
 from .seeds import as_generator, derive_seed
 
 METRICS = Registry("metric")
+
+#: Requests above these are refused up front by :func:`check_effort`.
+MAX_SECONDS = 7 * 86400.0
+MAX_BYTES = 8e9
+#: An optimistic speed (spin updates per second on one core), so only absurd requests are refused.
+UPDATES_PER_SECOND = 1e9
+#: The least a single sampler run costs (setting up, scoring its states).
+RUN_SECONDS = 1e-3
 
 
 @dataclasses.dataclass(frozen=True)
@@ -212,7 +221,7 @@ def _run_all(target: Instance, scorer: Instance, solvers, counts_by_solver, read
     return batches
 
 
-def _prepare(instance, metrics, solvers, sweeps, reads, options):
+def _prepare(instance, metrics, solvers, sweeps, reads, options, copies=1):
     if not isinstance(instance, Instance):
         raise InputError(f"expected an Instance, got {type(instance).__name__}")
     if isinstance(reads, bool) or not isinstance(reads, (int, np.integer)) or reads < 1:
@@ -240,7 +249,33 @@ def _prepare(instance, metrics, solvers, sweeps, reads, options):
         raise InputError(f"options given for solver(s) not being run: {', '.join(sorted(unknown))}")
     per_spec = {s.name: _counts(s, sweeps) for s in specs}
     needed = sorted({c for cs in per_spec.values() for c in cs})
+    check_effort(instance.n, int(reads), needed, len(solvers), copies)
     return specs, solvers, per_spec, {name: needed for name in solvers}, options
+
+
+def check_effort(n: int, reads: int, counts, solvers: int = 1, copies: int = 1) -> None:
+    """Refuse up front a measurement whose time or memory would be absurd (ResourceError).
+
+    The time is estimated at an optimistic :data:`UPDATES_PER_SECOND` spin
+    updates per second plus :data:`RUN_SECONDS` per sampler run; the memory
+    as the states kept for every run plus one batch being drawn and its
+    schedule.
+
+    >>> check_effort(128, 10**9, [10**6])  # doctest: +ELLIPSIS
+    Traceback (most recent call last):
+    ...
+    instgen.errors.ResourceError: the sampler runs would make 1.28e+17 spin updates (1,000,000,000 reads x 128 spins ...
+    """
+    updates = float(reads) * n * float(sum(counts)) * solvers * copies
+    seconds = updates / UPDATES_PER_SECOND + RUN_SECONDS * len(counts) * solvers * copies
+    need = float(reads) * n * (8 + len(counts) * solvers * copies) + 8.0 * max(counts)
+    if seconds > MAX_SECONDS or need > MAX_BYTES:
+        raise ResourceError(
+            f"the sampler runs would make {updates:.3g} spin updates ({reads:,} reads x {n:,} spins x "
+            f"{sum(counts):,} sweeps x {solvers} solver(s) x {copies} cop{'y' if copies == 1 else 'ies'}), about "
+            f"{duration(seconds)} even at {UPDATES_PER_SECOND:.0e} updates per second, and about "
+            f"{need / 1e9:.3g} GB; instgen refuses above {duration(MAX_SECONDS)} or {MAX_BYTES / 1e9:g} GB: "
+            "use fewer reads or sweeps")
 
 
 def _tolerance(instance: Instance) -> float:
@@ -369,7 +404,8 @@ def measure_perturbed(instance: Instance, metric: str, sigma: float, copies: int
     if combine not in COMBINE:
         raise InputError(f"unknown combine {combine!r}; choose one of: {', '.join(COMBINE)}")
     opts = {sampler: sampler_options} if sampler_options else None
-    specs, solvers, per_spec, needed, options = _prepare(instance, [metric], [sampler], sweeps, reads, opts)
+    specs, solvers, per_spec, needed, options = _prepare(instance, [metric], [sampler], sweeps, reads, opts,
+                                                         int(copies))
     br, scale, source = schedule_range(instance, beta_range, scale)
     if scale is None:
         raise InputError("control errors are sized by the coupling scale; give scale= for an instance "

@@ -30,8 +30,10 @@ def load_checkpoint(folder) -> dict:
         doc = json.loads(path.read_text())
     except FileNotFoundError:
         raise FormatError(f"{path}: no checkpoint to resume from (was the run started with this --out?)") from None
-    except (json.JSONDecodeError, UnicodeDecodeError):
-        raise FormatError(f"{path} is damaged (not valid JSON); start the run again without --resume") from None
+    except OSError as exc:
+        raise FormatError(f"{path}: cannot read the checkpoint ({exc.strerror or exc})") from None
+    except (json.JSONDecodeError, UnicodeDecodeError, RecursionError):
+        raise FormatError(f"{path} is damaged (not valid JSON); start the run again with another --out") from None
     if not isinstance(doc, dict) or doc.get("format") != FORMAT_NAME:
         raise FormatError(f"{path} is not an instgen checkpoint")
     if doc.get("format_version") != FORMAT_VERSION:

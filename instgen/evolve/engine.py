@@ -34,13 +34,13 @@ from pathlib import Path
 
 import numpy as np
 
-from ..errors import ClusterError, ConfigError
+from ..errors import ClusterError, ConfigError, FormatError
 from ..fitness import Context, Measurement, pool, value
 from ..io import atomic_write
 from ..make import rules_of, topology
 from ..preset import preset_hash, to_toml
 from ..seeds import derive_seed
-from .checkpoint import load_checkpoint, save_checkpoint
+from .checkpoint import FILENAME as CHECKPOINT, load_checkpoint, save_checkpoint
 from .executors import SerialExecutor, make_executor
 from ..library.fingerprint import fingerprint
 from .genome import PLANTED_GENOMES, FreeGenome, genome_from_dict, planted_genome
@@ -286,9 +286,16 @@ class Breeder:
         }
 
     def _restore(self, doc: dict):
-        if doc["resume_hash"] != _resume_hash(self.cfg):
+        if doc.get("resume_hash") != _resume_hash(self.cfg):
             raise ConfigError("this run folder was started with different settings; resume with the same preset "
                               "(only generations, time_budget, stall, target and workers may change)")
+        try:
+            self._restore_state(doc)
+        except (KeyError, TypeError, ValueError, AttributeError, IndexError) as exc:
+            raise FormatError(f"the checkpoint in {self.out} is damaged ({type(exc).__name__}: {exc}); "
+                              "start the run again with another --out") from None
+
+    def _restore_state(self, doc: dict):
         self.generation, self.evaluations = doc["generation"], doc["evaluations"]
         self.elapsed, self.best_since = doc["elapsed"], doc["best_since"]
         self.rng.bit_generator.state = doc["rng"]
@@ -316,11 +323,18 @@ class Breeder:
         return best >= self.cfg["search"]["target"]
 
     def run(self, resume: bool = False) -> dict:
-        """Breed until a stopping rule fires; returns the run's summary record."""
-        self.out.mkdir(parents=True, exist_ok=True)
+        """Breed until a stopping rule fires; returns the run's summary record.
+
+        A new run refuses a folder that already holds a run's checkpoint, so
+        forgetting ``resume`` never overwrites a run.
+        """
         if resume:
             self._restore(load_checkpoint(self.out))
         else:
+            if (self.out / CHECKPOINT).exists():
+                raise ConfigError(f"{self.out} already holds a run (it has a checkpoint); continue it with --resume, "
+                                  "or give another --out: a new run there would overwrite it")
+            self.out.mkdir(parents=True, exist_ok=True)
             atomic_write(self.out / "preset.toml", to_toml(self.cfg))
             atomic_write(self.out / "log.jsonl", "")
             self.population = []

@@ -119,7 +119,10 @@ class Library:
             own = {ENTRIES_DIR, INDEX_NAME, INDEX_NAME + "-wal", INDEX_NAME + "-shm", INDEX_NAME + "-journal"}
             if root.exists() and (not root.is_dir() or any(p.name not in own for p in root.iterdir())):
                 raise LibraryError(f"{root} exists and is not an instgen library; choose a new or empty folder")
-            (root / ENTRIES_DIR).mkdir(parents=True, exist_ok=True)
+            try:
+                (root / ENTRIES_DIR).mkdir(parents=True, exist_ok=True)
+            except OSError as exc:
+                raise LibraryError(f"cannot create a library at {root}: {exc.strerror or exc}") from None
         con = schema.connect(index, create=create)
         if create:  # also when the index exists: another process may be creating it right now
             try:
@@ -406,9 +409,11 @@ class Library:
                                f"has unreadable fields ({exc})") from None
 
     def _build_entry(self, r, scores, tags, seen) -> Entry:
+        if r["file"] != f"{ENTRIES_DIR}/{r['fingerprint']}.json":  # never a path outside the library
+            raise ValueError(f"its file is recorded as {r['file']!r}, not {ENTRIES_DIR}/<fingerprint>.json")
         cert = None
         if r["cert_status"] is not None:
-            cert = Certificate(energy=r["cert_energy"], state=decode_state(r["cert_state"] or ""),
+            cert = Certificate(energy=float(r["cert_energy"]), state=decode_state(r["cert_state"] or ""),
                                method=r["cert_method"], status=r["cert_status"], seconds=r["cert_seconds"] or 0.0,
                                ground_states=r["ground_states"], details=json.loads(r["cert_details"] or "{}"))
         return Entry(

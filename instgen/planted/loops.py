@@ -32,7 +32,7 @@ import dataclasses
 
 import numpy as np
 
-from ..errors import CertificationError, FormatError, InputError
+from ..errors import CertificationError, FormatError, InputError, ResourceError
 from ..seeds import as_generator
 from . import PlantedFamily, construction_of
 
@@ -411,6 +411,10 @@ def loop_instance(graph, loops, gauge, cap: float | None = None, **construction)
                     metadata={"kind": "planted", "construction": con})
 
 
+#: Most loops one instance may hold (refused up front beyond it: hours of random walks).
+MAX_LOOPS = 10_000_000
+
+
 def plant_loops(graph, density: float = 0.3, seed=None, *, min_length: int = 4, max_length: int | None = None,
                 cap: float | None = None, weights=(1.0,), max_redraws: int = 200):
     """A frustrated-loop instance with ``round(density * n)`` loops.
@@ -449,6 +453,9 @@ def plant_loops(graph, density: float = 0.3, seed=None, *, min_length: int = 4, 
     topo = topology(graph)
     lg = LoopGraph.of(topo)
     rng = as_generator(seed)
+    if density * topo.n > MAX_LOOPS:
+        raise ResourceError(f"density {density:g} on {topo.n:,} spins means {density * topo.n:.3g} loops; "
+                            f"instgen plants at most {MAX_LOOPS:,} loops per instance")
     count = max(1, int(round(density * topo.n)))
     loops = LoopSet(topo.m, cap)
     for _ in range(count):

@@ -29,7 +29,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..errors import CertificationError, InputError
+from ..errors import CertificationError, InputError, ResourceError
 from ..seeds import as_generator
 from . import PlantedFamily, construction_of
 
@@ -42,6 +42,10 @@ def _dense(instance_or_topo):
         raise InputError(f"the Wishart ensemble needs a complete graph (e.g. complete:{n}); "
                          f"this one has {len(e)} of {n * (n - 1) // 2} possible edges")
     return e
+
+
+#: Memory the disorder matrices may take (refused up front beyond it).
+MAX_BYTES = 4e9
 
 
 def plant_wishart(graph, alpha: float = 0.5, seed=None, *, disorder: str = "gaussian",
@@ -80,6 +84,10 @@ def plant_wishart(graph, alpha: float = 0.5, seed=None, *, disorder: str = "gaus
     N = topo.n
     if N < 3:
         raise InputError("the Wishart ensemble needs at least 3 spins")
+    need = 3 * 8.0 * N * alpha * N  # Z, W and their product's temporaries, float64
+    if need > MAX_BYTES:
+        raise ResourceError(f"alpha {alpha:g} on {N:,} spins means a disorder matrix of {N:,} x {alpha * N:.3g}, "
+                            f"about {need / 1e9:.3g} GB; instgen refuses above {MAX_BYTES / 1e9:g} GB")
     M = max(1, int(round(alpha * N)))
     rng = as_generator(seed)
     t = (2 * rng.integers(0, 2, size=N) - 1).astype(np.int8)

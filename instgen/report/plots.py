@@ -243,7 +243,8 @@ def profile_figure(profile):
         if np.any(~pos):
             ra.scatter(s[~pos], np.full(int(np.sum(~pos)), 0.03), marker="v", s=30, color=PALETTE["green"],
                        transform=ra.get_xaxis_transform(), clip_on=False, label="every replica at the reference")
-        plain_log(ra)
+        if np.any(pos):  # a log axis needs something above zero to show
+            plain_log(ra)
         ra.set_ylabel("residual energy per spin (energy units)")
         ra.set_title("Energy above the reference, per spin")
         ra.legend(frameon=False, loc="upper right")

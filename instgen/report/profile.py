@@ -39,7 +39,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ..errors import InputError
+from ..errors import InputError, ResourceError
 from ..instance import Instance
 from ..io import atomic_write
 
@@ -365,7 +365,7 @@ def anneal_profile(instance: Instance, points: int = 20, reads: int = 48, sweeps
     """
     from ..samplers import Schedule
     from ..samplers.pimc import anneal_snapshots
-    from ..scoring import resolve_reference, schedule_range
+    from ..scoring import MAX_BYTES, check_effort, resolve_reference, schedule_range
     from ..seeds import derive_seed
     from ..library.entry import energy_tolerance
 
@@ -376,6 +376,10 @@ def anneal_profile(instance: Instance, points: int = 20, reads: int = 48, sweeps
             raise InputError(f"{name} must be a whole number of at least {low}, got {v!r}")
     if sweeps < points:
         raise InputError(f"the anneal needs at least as many sweeps as sample points ({points}), got {sweeps}")
+    check_effort(instance.n, int(reads), [int(sweeps)])
+    if float(reads) * points * instance.n > MAX_BYTES:
+        raise ResourceError(f"keeping {reads:,} replicas of {instance.n:,} spins at {points:,} points needs about "
+                            f"{reads * points * instance.n / 1e9:.3g} GB; instgen refuses above {MAX_BYTES / 1e9:g} GB")
     every = -(-(int(sweeps) - 1) // (int(points) - 1))
     total = every * (int(points) - 1) + 1
     br, scale, beta_source = schedule_range(instance, beta_range, scale)
