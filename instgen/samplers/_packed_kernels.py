@@ -190,23 +190,35 @@ def anneal_packed(indptr, indices, cpos, wt, hpos, hw, W, planes, unit, betas, r
                             p2 ^= x
                             p4 ^= p3 & y
                             p3 ^= y
-                        pl[0], pl[1], pl[2], pl[3], pl[4] = p0, p1, p2, p3, p4
+                        wi = Wc[i]
+                        h_ = (wi + 1) >> 1
+                        # borrow out of K - ceil(W/2): set where dE > 0 (the flip needs luck)
+                        bo = ~p0 if h_ & 1 else _ZERO
+                        bo = (~p1 | bo) if h_ & 2 else (~p1 & bo)
+                        bo = (~p2 | bo) if h_ & 4 else (~p2 & bo)
+                        bo = (~p3 | bo) if h_ & 8 else (~p3 & bo)
+                        bo = (~p4 | bo) if h_ & 16 else (~p4 & bo)
+                        if bo:
+                            for kk in range(h_):
+                                mk[kk] = ((p0 if kk & 1 else ~p0) & (p1 if kk & 2 else ~p1) & (p2 if kk & 4 else ~p2)
+                                          & (p3 if kk & 8 else ~p3) & (p4 if kk & 16 else ~p4))
                     else:
                         _count_weighted(b, bi, i, lo, hi, indices, cp, wc, hp, hwc, planes, pl)
-                    wi = Wc[i]
-                    h_ = (wi + 1) >> 1
-                    # borrow out of K - ceil(W/2): set where dE > 0 (the flip needs luck)
-                    bo = _ZERO
-                    for q in range(planes):
-                        bo = (~pl[q] | bo) if (h_ >> q) & 1 else (~pl[q] & bo)
+                        wi = Wc[i]
+                        h_ = (wi + 1) >> 1
+                        bo = _ZERO
+                        for q in range(planes):
+                            bo = (~pl[q] | bo) if (h_ >> q) & 1 else (~pl[q] & bo)
+                        if bo:
+                            for kk in range(h_):
+                                m = ONES
+                                for q in range(planes):
+                                    m &= pl[q] if (kk >> q) & 1 else ~pl[q]
+                                mk[kk] = m
                     acc = ~bo
                     if bo:
                         anyp = _ZERO
                         for kk in range(h_):
-                            m = ONES
-                            for q in range(planes):
-                                m &= pl[q] if (kk >> q) & 1 else ~pl[q]
-                            mk[kk] = m
                             pk[kk] = p64[t, wi - 2 * kk]
                             anyp |= pk[kk]
                         if shared:
