@@ -51,9 +51,11 @@ def run(args):
         raise InputError(f"--transverse must be a positive number, got {args.transverse}")
     path = Path(args.file)
     inst = load_instance(path)
+    out = Path(args.out) if args.out else path.parent
+    if out.exists() and not out.is_dir():  # refused before the anneal, not after it
+        raise InputError(f"{out} is a file, not a folder to write the profile into")
     prof = anneal_profile(inst, points=args.points, reads=args.reads, sweeps=args.sweeps, seed=args.seed,
                           transverse=args.transverse, scale=args.scale)
-    out = Path(args.out) if args.out else path.parent
     files = write_profile(prof, out, f"{path.stem}-profile")
     if args.json:
         print_json({**prof.to_dict(), "files": {k: str(v) for k, v in files.items()}})

@@ -330,6 +330,9 @@ class Breeder:
         """
         if resume:
             self._restore(load_checkpoint(self.out))
+            # the log may hold the generation in flight (or half a line) when the run was killed:
+            # the checkpoint's history is the record, so the log restarts from it
+            atomic_write(self.out / "log.jsonl", "".join(json.dumps(r) + "\n" for r in self.history))
         else:
             if (self.out / CHECKPOINT).exists():
                 raise ConfigError(f"{self.out} already holds a run (it has a checkpoint); continue it with --resume, "
