@@ -9,7 +9,9 @@ for every row:
    time (default one CPU-hour, counted over the search process and its
    workers, so a busy machine buys the same search, only later).  The search
    scores with ``packed-sa``; it is stopped between generations and resumed
-   (which equals one go) until the budget is spent.
+   (which equals one go) until the budget is spent.  Started again with the
+   same ``--out``, an interrupted benchmark continues: the search from its
+   checkpoint and budget ledger, the rows from the figures already measured.
 2. **Rows**, ``PER_ROW`` instances each: plain frustrated loops (Hen et al.
    2015; weights 1, range-limited at |J| <= 3) at several densities; loops and
    frustrated Chimera cells drawn at random (the search's unbred starting
@@ -45,8 +47,8 @@ BETA = (0.1, 5.0)
 DENSITIES = (0.2, 0.35, 0.5, 0.8)
 PRESET = Path(__file__).resolve().parent.parent / "presets" / "certified-hard.toml"
 FULL = {"graph": GRAPH, "per_row": 5, "search_cpu": 3600.0, "step": 3,
-        "solvers": {"sa": ([1000, 4000, 16000, 64000], 32), "pimc": ([100, 400, 1600], 16)},
-        "long_anneal": (200_000, 256)}
+        "solvers": {"sa": ([1000, 4000, 16000, 64000], 32), "pimc": ([100, 400, 1600], 12)},
+        "long_anneal": (100_000, 128)}
 QUICK = {"graph": GRAPH, "per_row": 3, "search_cpu": 600.0, "step": 2,
          "solvers": {"sa": ([1000, 4000, 16000], 16), "pimc": ([100, 400], 8)},
          "long_anneal": (50_000, 128)}
@@ -78,18 +80,25 @@ def _search(out: str, budget: float, step: int, seed: int, graph: str) -> dict:
     from instgen.preset import load_preset, override
 
     base = load_preset(PRESET)
+    ledger = Path(out) / "budget.json"  # CPU and wall time spent so far, so a killed benchmark continues
+    spent = json.loads(ledger.read_text()) if ledger.exists() else {"cpu": 0.0, "wall": 0.0, "generations": 0}
     t0, c0 = time.perf_counter(), _cpu()
-    done, resume, result = 0, False, None
-    while _cpu() - c0 < budget:
+    done, resume, result = spent["generations"], spent["generations"] > 0, None
+    while spent["cpu"] + _cpu() - c0 < budget:
         done += step
         cfg = override(base, [f"search.generations={done}", "search.time_budget=1e9", f"run.seed={seed}",
                               f'run.output="{out}"', f'graph.spec="{graph}"'])
         result = Breeder(cfg, out).run(resume=resume)
         resume = True
+        ledger.write_text(json.dumps({"cpu": spent["cpu"] + _cpu() - c0, "wall": spent["wall"] + time.perf_counter()
+                                      - t0, "generations": result["generations"]}))
         if result["stopped"] and not result["stopped"].startswith("reached"):
             break
-    return {"wall": time.perf_counter() - t0, "cpu": _cpu() - c0, "generations": result["generations"],
-            "evaluations": result["evaluations"], "stopped": result["stopped"]}
+    total = json.loads(ledger.read_text())
+    doc = json.loads((Path(out) / "checkpoint.json").read_text()) if result is None else None
+    return {"wall": total["wall"], "cpu": total["cpu"], "generations": total["generations"],
+            "evaluations": result["evaluations"] if result else doc["evaluations"],
+            "stopped": result["stopped"] if result else "budget already spent"}
 
 
 def bred_instances(out: str, count: int) -> list:
@@ -153,11 +162,16 @@ def measure_instance(inst, plan: dict, seed: int) -> dict:
 
 
 def _job(args):
-    row, k, plan, inst_dict = args
+    row, k, plan, inst_dict, cache = args
     from instgen.io import instance_from_dict
 
+    path = Path(cache) / f"{row.replace(' ', '_').replace('±', 'pm').replace(',', '')}-{k}.json"
+    if path.exists():  # measured by an earlier, interrupted run of this benchmark
+        return row, k, json.loads(path.read_text())
     inst = instance_from_dict(inst_dict) if inst_dict is not None else row_instance(row, k, plan["graph"])
-    return row, k, measure_instance(inst, plan, seed=7919 * (k + 1))
+    result = measure_instance(inst, plan, seed=7919 * (k + 1))
+    path.write_text(json.dumps(result, default=str))
+    return row, k, result
 
 
 # ---------------------------------------------------------------------- table
@@ -194,7 +208,8 @@ def main(argv=None):
     plan = dict(SMOKE if args.smoke else QUICK if args.quick else FULL)
     budget = args.search_cpu or plan["search_cpu"]
     out = Path(args.out)
-    out.mkdir(parents=True, exist_ok=True)
+    cache = out / "measured"
+    cache.mkdir(parents=True, exist_ok=True)
     t0, c0 = time.perf_counter(), _cpu()
     rows = [f"loops {d:g}" for d in DENSITIES] + ["cells+loops, unbred", "random ±1"]
     results: dict = {r: [] for r in rows[:-1] + ["bred (this run)", "random ±1"]}
@@ -202,7 +217,8 @@ def main(argv=None):
     with cf.ProcessPoolExecutor(max_workers=1, mp_context=ctx) as search_pool, \
             cf.ProcessPoolExecutor(max_workers=1, mp_context=ctx) as measure_pool:
         search = search_pool.submit(_search, str(out / "run"), budget, plan["step"], args.seed, plan["graph"])
-        jobs = [measure_pool.submit(_job, (row, k, plan, None)) for row in rows for k in range(plan["per_row"])]
+        jobs = [measure_pool.submit(_job, (row, k, plan, None, str(cache)))
+                for row in rows for k in range(plan["per_row"])]
         for fut in cf.as_completed(jobs):
             row, k, r = fut.result()
             results[row].append(r)
@@ -214,7 +230,7 @@ def main(argv=None):
 
     bred = bred_instances(str(out / "run"), plan["per_row"])
     with cf.ProcessPoolExecutor(max_workers=2, mp_context=ctx) as pool:
-        for row, k, r in pool.map(_job, [("bred (this run)", k, plan, instance_to_dict(inst))
+        for row, k, r in pool.map(_job, [("bred (this run)", k, plan, instance_to_dict(inst), str(cache))
                                          for k, inst in enumerate(bred)]):
             results[row].append(r)
     solvers = list(plan["solvers"])

@@ -246,10 +246,10 @@ def _check_planting(cfg):
     PLANTED.get(method)
     if terms is not None:
         from .make import topology
-        from .planted.terms import _parse_kinds, check_shapes
+        from .planted.terms import check_shapes, parse_kinds
 
         try:
-            check_shapes(topology(cfg["graph"]["spec"]), _parse_kinds(terms))
+            check_shapes(topology(cfg["graph"]["spec"]), parse_kinds(terms))
         except InstgenError as exc:
             raise ConfigError(f"[planting] terms: {exc}") from None
 

@@ -32,8 +32,8 @@ import numpy as np
 
 from ..errors import ConfigError, InstgenError
 from ..planted.loops import Loop, LoopGraph, fits, random_loop
-from ..planted.terms import (SHAPES, Patch, Sites, _parse_kinds, applicable_shapes, draw_patch, local_pairs,
-                             term_couplings, terms_bound, _states)
+from ..planted.terms import (SHAPES, Patch, Sites, applicable_shapes, draw_patch, local_pairs, parse_kinds,
+                             patch_states, term_couplings, terms_bound)
 from .genome import array_key
 from .operators import Operator, Variation, register
 
@@ -78,7 +78,7 @@ class TermSetting:
             kinds = given if given else {k: 1.0 for k in ["loop"] + [s for s in applicable_shapes(topo)
                                                                      if s != "ball"]}
         try:
-            self.kinds = _parse_kinds(kinds)
+            self.kinds = parse_kinds(kinds)
             self.sites = {k: Sites.of(topo, k, self.patch_size) for k in self.kinds if k != "loop"}
         except InstgenError as exc:
             raise ConfigError(f"[planting] terms: {exc}") from None
@@ -231,7 +231,7 @@ def _regauge(term, rng, setting):
         others = [k for k in range(term.length) if k != term.frustrated]
         return Loop(term.spins, term.edges, others[int(rng.integers(len(others)))], term.weight)
     pairs = setting.pairs(term)
-    S = _states(len(term.spins))
+    S = patch_states(len(term.spins))
     v = term.values()
     E = (S[:, pairs[:, 0]] * S[:, pairs[:, 1]]) @ v
     ground = np.flatnonzero(E <= E[0] + _TOL)

@@ -249,7 +249,7 @@ def applicable_shapes(topology) -> list[str]:
 
 # -------------------------------------------------------------------- patches
 @functools.lru_cache(maxsize=32)
-def _states(k: int) -> np.ndarray:
+def patch_states(k: int) -> np.ndarray:
     """All 2^(k-1) states of k spins with spin 0 fixed to +1 (a global flip costs nothing); row 0 is all +1."""
     idx = np.arange(1 << (k - 1))[:, None]
     rest = 1 - 2 * ((idx >> np.arange(k - 1)) & 1)
@@ -290,7 +290,7 @@ def draw_patch(shape: str, spins, edges, topology_edges, rng, weights=(1.0,), ke
     w = np.asarray(weights, dtype=np.float64)
     vals = w[rng.integers(w.size, size=len(edges))] * (2 * rng.integers(0, 2, size=len(edges)) - 1)
     vals = vals * (rng.random(len(edges)) < keep)
-    S = _states(k)
+    S = patch_states(k)
     E = (S[:, pairs[:, 0]] * S[:, pairs[:, 1]]) @ vals
     ground = np.flatnonzero(E <= E.min() + _TOL)
     g = S[ground[int(rng.integers(ground.size))]].astype(np.float64)
@@ -331,9 +331,25 @@ def terms_bound(terms) -> float:
 
 
 # ------------------------------------------------------------------ the family
-def _parse_kinds(kinds) -> dict:
+def parse_kinds(kinds) -> dict:
+    """Term kinds and weights from ``"loop,cell"``, ``"loop:2,cell:1"`` or ``{"loop": 2, "cell": 1}``.
+
+    InputError when a kind is unknown or a weight is not a number >= 0.
+
+    >>> parse_kinds("loop,cell:2")
+    {'loop': 1.0, 'cell': 2.0}
+    """
     if isinstance(kinds, str):
-        kinds = {k.strip(): 1.0 for k in kinds.split(",") if k.strip()}
+        parsed = {}
+        for item in (x.strip() for x in kinds.split(",")):
+            name, _, weight = item.partition(":")
+            if not name:
+                continue
+            try:
+                parsed[name.strip()] = float(weight) if weight.strip() else 1.0
+            except ValueError:
+                raise InputError(f"a term kind's weight must be a number, got {item!r}") from None
+        kinds = parsed
     if not isinstance(kinds, dict) or not kinds:
         raise InputError(f"kinds must name term kinds with weights, e.g. {{loop = 1, cell = 1}}; got {kinds!r}")
     bad = [k for k in kinds if k not in KINDS]
@@ -406,7 +422,7 @@ def plant_terms(graph, density: float = 0.3, seed=None, *, kinds="loop,ball", ca
         raise InputError(f"the cap must be at least the smallest weight ({w.min():g}), got {cap!r}")
     if not 2 <= int(patch_size) <= MAX_PATCH_SPINS:
         raise InputError(f"patch_size must lie between 2 and {MAX_PATCH_SPINS}, got {patch_size!r}")
-    kinds = _parse_kinds(kinds)
+    kinds = parse_kinds(kinds)
     topo = _topology(graph)
     rng = as_generator(seed)
     sites = {k: Sites.of(topo, k, patch_size) for k in kinds if k != "loop"}

@@ -245,3 +245,10 @@ def test_breed_reports_planted_energy_certificate_and_baseline(tmp_path, capsys)
     out = capsys.readouterr().out
     assert "planted energies" in out and "random baseline" in out
     assert "baseline reference energ" in out
+
+
+def test_term_kinds_read_from_text_and_tables():
+    assert pt.parse_kinds("loop:2,cell") == {"loop": 2.0, "cell": 1.0}
+    assert pt.parse_kinds({"loop": 1, "ball": 0}) == {"loop": 1.0}  # weight 0 leaves a kind out
+    with pytest.raises(pt.InputError, match="must be a number"):
+        pt.parse_kinds("loop:x")
