@@ -26,6 +26,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import json
+import math
 import os
 import tempfile
 from pathlib import Path
@@ -120,6 +121,13 @@ def _reject_constant(name):
     raise FormatError(f"the file holds {name}, which is not a finite number")
 
 
+def _finite_float(text):
+    value = float(text)
+    if not math.isfinite(value):  # 1e999 reads as infinity: refused like the word Infinity
+        _reject_constant(text)
+    return value
+
+
 def _upgrade(doc: dict, where: str) -> dict:
     version = doc.get("format_version")
     if not isinstance(version, int) or isinstance(version, bool):
@@ -175,6 +183,7 @@ def instance_from_dict(doc, where: str = "instance") -> Instance:
     if not isinstance(meta, dict):
         raise FormatError(f"{where}: 'metadata' must be an object")
     _check_metadata(meta, n, where)
+    _check_text([doc.get("graph"), doc["labels"], meta, doc.get("provenance")], where)
     prov = doc.get("provenance", {})
     if not isinstance(prov, dict):
         raise FormatError(f"{where}: 'provenance' must be an object")
@@ -186,6 +195,26 @@ def instance_from_dict(doc, where: str = "instance") -> Instance:
                         planted=planted, metadata={**meta, "provenance": prov})
     except InputError as exc:
         raise FormatError(f"{where}: {exc}") from None
+
+
+def _check_text(items, where: str) -> None:
+    """Every string (and key) must be real Unicode: JSON's escapes can spell a lone surrogate, which
+    no file, terminal or database can hold."""
+    stack = list(items)
+    while stack:
+        x = stack.pop()
+        if isinstance(x, str):
+            if not x.isascii():
+                try:
+                    x.encode("utf-8")
+                except UnicodeEncodeError:
+                    raise FormatError(f"{where}: holds text that is not valid Unicode "
+                                      f"(a lone surrogate escape in {x!r})") from None
+        elif isinstance(x, dict):
+            stack.extend(x.keys())
+            stack.extend(x.values())
+        elif isinstance(x, (list, tuple)):
+            stack.extend(x)
 
 
 def _check_metadata(meta: dict, n: int, where: str) -> None:
@@ -230,7 +259,9 @@ def _check_metadata(meta: dict, n: int, where: str) -> None:
 
 def loads_instance(text: str, where: str = "instance") -> Instance:
     try:
-        doc = json.loads(text, parse_constant=_reject_constant)
+        doc = json.loads(text, parse_constant=_reject_constant, parse_float=_finite_float)
+    except FormatError as exc:
+        raise FormatError(f"{where}: {exc}") from None
     except json.JSONDecodeError as exc:
         raise FormatError(f"{where} is not valid JSON (truncated or damaged?): {exc.msg} at line {exc.lineno}") from None
     except RecursionError:
@@ -263,7 +294,10 @@ def load_instance(path) -> Instance:
 
 
 def dumps_instance(inst: Instance, provenance: dict | None = None) -> str:
-    return json.dumps(instance_to_dict(inst, provenance), separators=(",", ":"), allow_nan=False) + "\n"
+    try:
+        return json.dumps(instance_to_dict(inst, provenance), separators=(",", ":"), allow_nan=False) + "\n"
+    except (ValueError, TypeError) as exc:  # NaN, infinity or an object JSON cannot hold, in the metadata
+        raise InputError(f"the instance's metadata cannot be written as JSON ({exc})") from None
 
 
 def save_instance(inst: Instance, path, provenance: dict | None = None) -> Path:

@@ -164,6 +164,8 @@ def _check_value(table, key, value):
         words = {int: "whole number", float: "number", str: "string", list: "list", dict: "table"}
         names = words[types] if isinstance(types, type) else "number"
         raise ConfigError(f"{where} must be a {names}, got {value!r}")
+    if isinstance(value, str) and not value.isprintable() and not _encodable(value):
+        raise ConfigError(f"{where} is not valid text (it holds a lone surrogate), got {value!r}")
     if isinstance(value, float) and (math.isnan(value) or (math.isinf(value) and key != "target")):
         raise ConfigError(f"{where} must be a finite number, got {value!r}")
     if check is not None:
@@ -171,6 +173,14 @@ def _check_value(table, key, value):
         if problem:
             raise ConfigError(f"{where} {problem}, got {value!r}")
     return value
+
+
+def _encodable(text: str) -> bool:
+    try:
+        text.encode("utf-8")
+        return True
+    except UnicodeEncodeError:
+        return False
 
 
 def _check_names(cfg):
@@ -318,7 +328,7 @@ def _toml_value(v):
     if isinstance(v, bool):
         return "true" if v else "false"
     if isinstance(v, str):
-        return json.dumps(v)
+        return _toml_string(v)
     if isinstance(v, float):
         return "inf" if v == _INF else ("-inf" if v == -_INF else repr(v))
     if isinstance(v, int):
@@ -326,5 +336,11 @@ def _toml_value(v):
     if isinstance(v, list):
         return "[" + ", ".join(_toml_value(x) for x in v) + "]"
     if isinstance(v, dict):
-        return "{ " + ", ".join(f"{json.dumps(str(k))} = {_toml_value(x)}" for k, x in v.items()) + " }"
+        return "{ " + ", ".join(f"{_toml_string(str(k))} = {_toml_value(x)}" for k, x in v.items()) + " }"
     raise ConfigError(f"cannot write {v!r} to TOML")
+
+
+def _toml_string(text: str) -> str:
+    """A TOML basic string: JSON's escapes, but characters beyond U+FFFF written as themselves
+    (JSON would write surrogate pairs, which TOML refuses) and DEL escaped (TOML refuses it raw)."""
+    return json.dumps(text, ensure_ascii=False).replace("\x7f", "\\u007f")

@@ -56,8 +56,9 @@ def main(argv=None) -> int:
         return 2
     try:
         return int(args._run(args) or 0)
-    except InstgenError as exc:
-        sys.stderr.write(f"instgen {args.command}: {exc}\n")
+    except InstgenError as exc:  # one line, even when the message quotes a name holding line breaks
+        message = str(exc).replace("\r", "\\r").replace("\n", "\\n")
+        sys.stderr.write(f"instgen {args.command}: {message}\n")
         return 2
     except KeyboardInterrupt:
         sys.stderr.write(f"instgen {args.command}: interrupted\n")

@@ -85,6 +85,7 @@ RAW_PRESETS = [
     ("binary preset", b"\xff\xfe\x00\x01[run]", "not a text file"),
     ("deeply nested", "[fitness]\nweights = " + "[" * 600 + "]" * 600 + "\n", "nested too deeply"),
     ("a value where a table belongs", 'graph = "chimera:1"\n', "must be a table"),
+    ("a table name with a line break", '["run\\nnow"]\nseed = 1\n', "unknown table"),
 ]
 
 
@@ -217,6 +218,10 @@ INSTANCES = [
     ("integer coupling beyond a float", lambda d: {**d, "J": [2**1100] + d["J"][1:]}, "fit a float"),
     ("energies that overflow", lambda d: {**d, "J": [1e308] * len(d["J"])}, "overflow"),
     ("true as a coupling", lambda d: {**d, "J": [True] + d["J"][1:]}, "numbers only"),
+    ("infinity in the metadata", lambda d: json.dumps({**d, "metadata": {"note": "@"}}).replace('"@"', "1e999"),
+     "1e999"),
+    ("lone surrogate in a label", lambda d: json.dumps({**d, "labels": ["@"] + d["labels"][1:]})
+     .replace('"@"', '"\\ud800"'), "not valid Unicode"),
     ("graph as a number", _set("graph", 7), "'graph' must be a string"),
     ("certificate as text", _meta(certificate="trust me"), "certificate"),
     ("certificate of the wrong length", _cert(state=[1, -1]), "certificate"),
@@ -253,7 +258,8 @@ def test_nan_coupling_case_really_holds_nan(tmp_path):
     """Guard for the text-edited cases above: the edit must land in the file (else they test nothing)."""
     cases = dict((c[0], c[1]) for c in INSTANCES)
     for name, token in (("NaN coupling", "NaN"), ("infinite field", "Infinity"),
-                        ("coupling too large for a float", "1e999")):
+                        ("coupling too large for a float", "1e999"), ("infinity in the metadata", "1e999"),
+                        ("lone surrogate in a label", "\\ud800")):
         assert token in cases[name](good_doc()), name
 
 
@@ -265,7 +271,8 @@ COMMANDS = [
 ]
 
 
-@pytest.mark.parametrize("case", ["truncated", "certificate of the wrong length", "no spins"])
+@pytest.mark.parametrize("case", ["truncated", "certificate of the wrong length", "no spins",
+                                  "infinity in the metadata"])
 @pytest.mark.parametrize("argv", [c[1] for c in COMMANDS], ids=[c[0] for c in COMMANDS])
 def test_bad_instance_files_under_every_command(here, capsys, case, argv):
     f = _write_case(here / "bad.json", dict((c[0], c[1]) for c in INSTANCES)[case])
@@ -447,7 +454,7 @@ def test_bad_arguments(here, capsys, argv, needle):
 def test_catalogue_is_large_enough():
     """Issue 10 asks for at least 40 malformed inputs; count them so shrinking the catalogue shows."""
     count = (len(PRESETS) + len(RAW_PRESETS) + 2 + len(BREED_FLAGS) + len(RUN_FOLDERS) + len(INSTANCES)
-             + 3 * len(COMMANDS) + len(LIBRARIES) + len(LIBRARY_ARGS) + len(CLI))
+             + 4 * len(COMMANDS) + len(LIBRARIES) + len(LIBRARY_ARGS) + len(CLI))
     assert count >= 40
     print(f"{count} malformed inputs in the catalogue")
 
