@@ -62,6 +62,8 @@ class TermSetting:
         rules = var.rules
         alpha = rules.couplings
         weights = sorted({abs(v) for v in alpha.values if v != 0}) if alpha.discrete else [alpha.scale]
+        if rules.precision is not None:  # continuous alphabets: the weight on the precision grid
+            weights = sorted({max(1, round(w / rules.precision)) * rules.precision for w in weights})
         cap = planting.get("cap") or rules.coupling_range or (alpha.max_abs if alpha.discrete else None)
         if cap is not None and min(weights) > cap:
             raise ConfigError(f"[planting] cap {cap:g} is below the smallest coupling weight {min(weights):g}")

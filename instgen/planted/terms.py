@@ -15,13 +15,9 @@ is a proof, whatever terms are added, removed or moved.  Two kinds of term:
   :data:`MAX_PATCH_SPINS` spins, drawn at random and then gauged by one of
   their own ground states, so all +1 is a ground state of the patch; the
   proof is an enumeration of the patch's 2^k states.  A patch lies on a
-  *site* of one shape:
-
-  ``cell``    a unit cell of a Chimera graph (K_{T,T}, "Chimera-like cells");
-  ``tile``    a plaquette of a square lattice or a unit cube of a cubic one
-              (the tiles of Perera et al. 2020 / Hamze et al. 2018);
-  ``clique``  a triangle or a 4-clique, on graphs that have them;
-  ``ball``    the spins nearest a centre spin (breadth first), on any graph.
+  *site* (:mod:`instgen.planted.sites`): a Chimera unit ``cell``, a lattice
+  ``tile`` (plaquette or unit cube, as in Perera et al. 2020 / Hamze et al.
+  2018), a small ``clique``, or a ``ball`` of the spins nearest a centre.
 
 A cap R on the accumulated |J| of every edge (the coupling range) makes the
 construction range-limited (King et al., arXiv:1502.02098): a term that would
@@ -36,7 +32,6 @@ from __future__ import annotations
 
 import dataclasses
 import functools
-import itertools
 
 import numpy as np
 
@@ -44,11 +39,11 @@ from ..errors import CertificationError, FormatError, InputError
 from ..seeds import as_generator
 from . import PlantedFamily, construction_of, planted_gauge_couplings
 from .loops import Loop, LoopGraph, check_loop, fits, random_loop
+from .sites import SHAPES, Sites, applicable_shapes, check_shapes
 from .tiles import ground_state_ok
 
 #: Largest patch, in spins (its proof enumerates 2^k states).
 MAX_PATCH_SPINS = 16
-SHAPES = ("cell", "tile", "clique", "ball")
 KINDS = ("loop",) + SHAPES
 _TOL = 1e-9
 
@@ -99,152 +94,6 @@ class Patch:
         except (TypeError, ValueError):
             raise FormatError(f"a patch must be [shape, spins, edges, values] with a shape in {SHAPES}, "
                               f"got {str(item)[:80]}") from None
-
-
-# ----------------------------------------------------------------------- sites
-@dataclasses.dataclass(frozen=True, eq=False)
-class Sites:
-    """Where patches of one shape may lie on one graph.
-
-    ``spins[k]`` and ``edges[k]`` are site k's spins and the edge indices among
-    them; ``at[v]`` lists the sites holding spin v.  Balls have no fixed list:
-    :meth:`ball` grows one on demand.
-    """
-
-    shape: str
-    spins: list
-    edges: list
-    at: list
-
-    @classmethod
-    def of(cls, topology, shape: str, size: int = 8) -> Sites:
-        """The sites of ``shape`` on ``topology`` (InputError when the graph has none)."""
-        if shape not in SHAPES:
-            raise InputError(f"unknown patch shape {shape!r}; choose from: {', '.join(SHAPES)}")
-        groups = _GROUPS[shape](topology) if shape != "ball" else []
-        eidx = {(int(i), int(j)): k for k, (i, j) in enumerate(topology.edges.tolist())}
-        spins, edges = [], []
-        for g in groups:
-            g = tuple(sorted(set(int(v) for v in g)))
-            ids = tuple(eidx[p] for p in itertools.combinations(g, 2) if p in eidx)
-            if len(g) >= 2 and ids:
-                spins.append(g)
-                edges.append(ids)
-        if shape != "ball" and not spins:
-            raise InputError(f"the graph {topology.spec} has no {shape} sites; "
-                             f"patch shapes that fit it: {', '.join(applicable_shapes(topology)) or 'none'}")
-        at = [[] for _ in range(topology.n)]
-        for k, g in enumerate(spins):
-            for v in g:
-                at[v].append(k)
-        site = cls(shape, spins, edges, at)
-        object.__setattr__(site, "_size", int(size))
-        object.__setattr__(site, "_topology", topology)
-        return site
-
-    def pick(self, rng, near: int | None = None) -> tuple[tuple, tuple]:
-        """A random site (one holding spin ``near`` when given and there is one)."""
-        if self.shape == "ball":
-            n = self._topology.n
-            return self.ball(int(rng.integers(n)) if near is None else int(near), rng)
-        choices = self.at[near] if near is not None and self.at[near] else range(len(self.spins))
-        k = int(choices[int(rng.integers(len(choices)))])
-        return self.spins[k], self.edges[k]
-
-    def ball(self, centre: int, rng) -> tuple[tuple, tuple]:
-        """About ``size`` spins nearest ``centre`` (ties broken at random) and the edges among them."""
-        adj = _adjacency(self._topology)
-        seen, frontier = [centre], [centre]
-        inside = {centre}
-        while frontier and len(seen) < self._size:
-            nxt = []
-            for v in frontier:
-                for u in rng.permutation(adj[v]).tolist():
-                    if u not in inside and len(seen) < self._size:
-                        inside.add(u)
-                        seen.append(u)
-                        nxt.append(u)
-            frontier = nxt
-        g = tuple(sorted(seen))
-        eidx = _edge_index(self._topology)
-        ids = tuple(eidx[p] for p in itertools.combinations(g, 2) if p in eidx)
-        return g, ids
-
-
-def _edge_index(topology) -> dict:
-    cache = getattr(topology, "_edge_index_cache", None)
-    if cache is None:
-        cache = {(int(i), int(j)): k for k, (i, j) in enumerate(topology.edges.tolist())}
-        object.__setattr__(topology, "_edge_index_cache", cache)
-    return cache
-
-
-def _adjacency(topology) -> list:
-    cache = getattr(topology, "_adjacency_cache", None)
-    if cache is None:
-        cache = [[] for _ in range(topology.n)]
-        for i, j in topology.edges.tolist():
-            cache[i].append(j)
-            cache[j].append(i)
-        object.__setattr__(topology, "_adjacency_cache", cache)
-    return cache
-
-
-def _cells(topology):
-    if topology.family != "chimera":
-        return []
-    args = topology.params.get("args", [])
-    t = int(args[2]) if len(args) > 2 else 4
-    groups: dict = {}
-    for k, label in enumerate(topology.labels):
-        groups.setdefault(int(label) // (2 * t), []).append(k)
-    return list(groups.values())
-
-
-def _tiles(topology):
-    if topology.family not in ("square", "cubic") or topology.coords is None:
-        return []
-    coords = np.asarray(topology.coords, dtype=np.int64)
-    shape = coords.max(axis=0) + 1
-    periodic = "periodic" in topology.params.get("args", [])
-    index = {tuple(c): k for k, c in enumerate(coords.tolist())}
-    corners = list(itertools.product((0, 1), repeat=coords.shape[1]))
-    out = []
-    for c in coords.tolist():
-        pts = [tuple((c[d] + o[d]) % shape[d] if periodic else c[d] + o[d] for d in range(len(c))) for o in corners]
-        if all(p in index for p in pts):
-            out.append([index[p] for p in pts])
-    return out
-
-
-def _cliques(topology, limit: int = 200_000):
-    import networkx as nx
-
-    out = []
-    for c in nx.enumerate_all_cliques(topology.index_graph()):
-        if len(c) > 4:
-            break
-        if len(c) >= 3:
-            out.append(c)
-            if len(out) >= limit:
-                break
-    return out
-
-
-_GROUPS = {"cell": _cells, "tile": _tiles, "clique": _cliques}
-
-
-def check_shapes(topology, kinds) -> None:
-    """InputError naming the shapes that fit, when a requested patch shape has no site on ``topology``."""
-    for shape in kinds:
-        if shape in SHAPES and shape != "ball" and not _GROUPS[shape](topology):
-            raise InputError(f"the graph {topology.spec} has no {shape} sites; patch shapes that fit it: "
-                             f"{', '.join(applicable_shapes(topology))}")
-
-
-def applicable_shapes(topology) -> list[str]:
-    """The patch shapes that have sites on ``topology`` (``ball`` always does)."""
-    return [s for s in SHAPES if s == "ball" or _GROUPS[s](topology)]
 
 
 # -------------------------------------------------------------------- patches

@@ -80,7 +80,8 @@ def _churn(var, genome_cls, applications, seed, check):
 
 @pytest.mark.slow
 @pytest.mark.parametrize("alphabet,cap,precision,applications", [
-    ("int:3", 3, 1, 1500), ("pm1", 1, 1, 300), ("levels:-1,-0.5,0.5,1", 1, 0.5, 300)])
+    ("int:3", 3, 1, 1500), ("pm1", 1, 1, 300), ("levels:-1,-0.5,0.5,1", 1, 0.5, 300),
+    ("uniform:-1,1", 1, 0.3, 100)])
 def test_thousands_of_children_on_chimera2_keep_the_planted_ground_state(alphabet, cap, precision, applications):
     topo, rules, var = _var("chimera:2", alphabet, cap, precision, {"loop": 1, "cell": 1, "ball": 1})
     _churn(var, TermGenome, applications, seed=len(alphabet),
