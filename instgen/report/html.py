@@ -74,6 +74,7 @@ def load_run(folder) -> tuple[dict, list[dict]]:
     for key in ("run", "winners", "baseline", "comparison", "cautions"):
         if key not in summary:
             raise FormatError(f"{folder / 'summary.json'} has no {key!r} section")
+    _check_summary(summary, folder / "summary.json")
     records = []
     log = folder / "log.jsonl"
     if log.is_file():
@@ -84,6 +85,34 @@ def load_run(folder) -> tuple[dict, list[dict]]:
                 except json.JSONDecodeError:
                     raise FormatError(f"{log} line {i} is not valid JSON") from None
     return summary, records
+
+
+_NUMBER = (int, float)
+#: What the run page reads from a summary, with the types it needs.
+_SUMMARY_SHAPE = {"run": dict, "winners": list, "baseline": dict, "comparison": list, "cautions": list,
+                  "generations": int, "evaluations": int, "elapsed": _NUMBER}
+_RUN_SHAPE = {"name": str, "graph": str, "n": int, "m": int, "metric": str, "sampler": str, "solvers": list,
+              "sweeps": list}
+_ENTRY_SHAPE = {"n": int, "m": int, "certificate": dict, "scores": list}
+
+
+def _check_summary(summary: dict, where) -> None:
+    """Refuse a summary (hand-edited, foreign, damaged) that lacks what the page reads, naming the part."""
+    def check(d, shape, at):
+        for key, kind in shape.items():
+            if not isinstance(d, dict) or not isinstance(d.get(key), kind) or isinstance(d.get(key), bool):
+                raise FormatError(f"{where} is damaged or not from this instgen: {at}{key} is missing "
+                                  "or of the wrong kind")
+
+    check(summary, _SUMMARY_SHAPE, "")
+    check(summary["run"], _RUN_SHAPE, "run.")
+    check(summary["baseline"], {"instances": list}, "baseline.")
+    for part, entries in (("winners", summary["winners"]), ("baseline.instances", summary["baseline"]["instances"])):
+        for k, e in enumerate(entries):
+            check(e, {**_ENTRY_SHAPE, **({"rank": int, "file": str} if part == "winners" else {})}, f"{part}[{k}].")
+            check(e["certificate"], {"energy": _NUMBER, "status": str}, f"{part}[{k}].certificate.")
+            for j, sc in enumerate(e["scores"]):
+                check(sc, {"metric": str}, f"{part}[{k}].scores[{j}].")
 
 
 # -------------------------------------------------------------- formatting

@@ -440,6 +440,7 @@ CLI = [
     ("report of nothing", ["report", "{tmp}/nowhere"], "not a folder"),
     ("report of an empty folder", ["report", "{tmp}/sub"], "neither a run folder"),
     ("report of a file", ["report", "{tmp}/good.json"], "not a folder"),
+    ("report of a hollow run summary", ["report", "{tmp}/hollow", "--no-measure"], "run.name is missing"),
     ("unknown command", ["sing"], "invalid choice"),
 ]
 
@@ -448,6 +449,10 @@ CLI = [
 def test_bad_arguments(here, capsys, argv, needle):
     write_doc(here / "good.json", good_doc(graph="chimera:2"))
     (here / "sub").mkdir()
+    (here / "hollow").mkdir()
+    (here / "hollow" / "summary.json").write_text(json.dumps({
+        "format": "instgen-run-summary", "format_version": 1, "run": {}, "winners": [], "baseline": {},
+        "comparison": [], "cautions": [], "generations": 1, "evaluations": 1, "elapsed": 1.0}))
     refused([str(a).replace("{tmp}", str(here)) for a in argv], capsys, here, needle)
 
 
