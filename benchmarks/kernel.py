@@ -26,11 +26,12 @@ Gaussian row, ±1 for the ±1 rows).
 from __future__ import annotations
 
 import argparse
-import platform
 import statistics
 import time
 
 import numpy as np
+
+from benchmarks._machine import cpu_model
 
 from instgen.make import make_instance
 from instgen.samplers import Schedule
@@ -46,17 +47,6 @@ READS = 64
 #: Aim for this many spin updates per timed call of our kernels (sets the candidate count).
 TARGET_UPDATES = 5e7
 MIN_SECONDS = 0.15
-
-
-def cpu_model() -> str:
-    try:
-        with open("/proc/cpuinfo") as fh:
-            for line in fh:
-                if line.startswith("model name"):
-                    return line.split(":", 1)[1].strip()
-    except OSError:
-        pass
-    return platform.processor() or "unknown CPU"
 
 
 def _timed(fn) -> float:

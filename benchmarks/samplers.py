@@ -11,9 +11,9 @@ compares one scoring call with the bare sampler calls inside it.
 
 from __future__ import annotations
 
-import platform
 import time
 
+from benchmarks._machine import cpu_model
 from instgen.make import make_instance
 from instgen.samplers import SAMPLERS, Schedule, default_beta_range
 from instgen.scoring import measure
@@ -24,17 +24,6 @@ PLAN = {
     "pimc": (100, 8), "tabu": (500, 16), "descent": (50, 16),
 }
 REPEATS = 3
-
-
-def cpu_model() -> str:
-    try:
-        with open("/proc/cpuinfo") as fh:
-            for line in fh:
-                if line.startswith("model name"):
-                    return line.split(":", 1)[1].strip()
-    except OSError:
-        pass
-    return platform.processor() or "unknown CPU"
 
 
 def time_sampler(name, inst, sweeps, reads):

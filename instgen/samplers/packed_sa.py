@@ -57,18 +57,12 @@ Acceptance probabilities are held as 64-bit fixed-point numbers (error below 2^-
 
 from __future__ import annotations
 
-import time
-from collections.abc import Sequence
-
 import numpy as np
 
 from ..errors import InputError
 from ..instance import Instance
-from ..records import SampleBatch
 from . import _packed_kernels as _pk
-from .base import Sampler
-from .fast_sa import (ORDERS, betas_of, candidate_seeds, check_request, energies_of, field_bound,
-                      schedule_record, stack, to_batches)
+from .fast_sa import ORDERS, FastAnnealing, betas_of, energies_of, field_bound
 from .schedule import Schedule
 
 RANDOMNESS = ("independent", "shared")
@@ -127,8 +121,12 @@ def suits(rules) -> bool:
     return True
 
 
-class PackedAnnealing(Sampler):
+class PackedAnnealing(FastAnnealing):
     """Simulated annealing with 64 replicas per machine word (see the module docstring).
+
+    ``run`` and ``run_many`` are :class:`FastAnnealing`'s; only the compiled anneal
+    differs.  Reads are best chosen as multiples of 64 (the rest of the last word
+    is discarded).
 
     Options
     -------
@@ -152,38 +150,6 @@ class PackedAnnealing(Sampler):
 
     name = "packed-sa"
     options = {"order": "sequential", "randomness": "independent"}
-
-    def _run(self, instance, schedule, reads, seed, options):
-        lay, J, h = stack([instance])
-        states, energies = self._anneal(lay, J, h, schedule, reads, [seed], options)
-        return {"states": states[0], "energies": energies[0],
-                "spin_updates": reads * schedule.sweeps * instance.n, "schedule": schedule_record(schedule)}
-
-    def run_many(self, instances: Sequence[Instance], schedule: Schedule, reads: int = 128, seeds=None,
-                 **options) -> list[SampleBatch]:
-        """Anneal several candidates on one graph in one compiled call.
-
-        Same contract as :meth:`FastAnnealing.run_many
-        <instgen.samplers.fast_sa.FastAnnealing.run_many>`: candidate c's batch
-        equals ``self.run(instances[c], schedule, reads, seeds[c])``.  Reads are
-        best chosen as multiples of 64 (the rest of the last word is discarded).
-
-        Examples
-        --------
-        >>> from instgen.make import make_instance
-        >>> from instgen.samplers import Schedule
-        >>> inst = make_instance("chimera:1", "int:2", seed=2)
-        >>> out = PackedAnnealing().run_many([inst], Schedule(sweeps=20), reads=64, seeds=[3])
-        >>> out[0].energies.shape
-        (64,)
-        """
-        opts = check_request(self, schedule, reads, options)
-        lay, J, h = stack(instances)
-        seeds = candidate_seeds(seeds, J.shape[0], self.name)
-        t0 = time.perf_counter()
-        states, energies = self._anneal(lay, J, h, schedule, int(reads), seeds, opts)
-        seconds = time.perf_counter() - t0
-        return to_batches(self.name, states, energies, schedule, reads, seeds, seconds, opts)
 
     def _anneal(self, lay, J, h, schedule, reads, seeds, options):
         if options["order"] not in ORDERS:
