@@ -34,7 +34,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ..errors import ClusterError, ConfigError, FormatError
+from ..errors import ClusterError, ConfigError, FormatError, WriteError
 from ..fitness import Context, Measurement, pool, value
 from ..io import atomic_write
 from ..make import rules_of, topology
@@ -358,8 +358,7 @@ class Breeder:
                 self.elapsed += time.perf_counter() - t0
                 record = self._record(entered, time.perf_counter() - t0)
                 self.history.append(record)
-                with open(self.out / "log.jsonl", "a") as fh:
-                    fh.write(json.dumps(record) + "\n")
+                self._log(record)
                 if self.progress:
                     self.progress(record)
                 self._next_population()
@@ -371,6 +370,15 @@ class Breeder:
             self.executor.close()
         return {"stopped": reason, "generations": self.generation, "evaluations": self.evaluations,
                 "elapsed": self.elapsed, "hall_of_fame": [f.to_dict() for f in self.hall]}
+
+    def _log(self, record: dict) -> None:
+        """Append a generation's record to log.jsonl (a full disk stops the run with the checkpoint intact)."""
+        try:
+            with open(self.out / "log.jsonl", "a") as fh:
+                fh.write(json.dumps(record) + "\n")
+        except OSError as exc:
+            raise WriteError(f"cannot write {self.out / 'log.jsonl'}: {exc.strerror or exc}; the checkpoint of the "
+                             "last finished generation is intact: make room and continue with --resume") from None
 
     def _record(self, entered, seconds) -> dict:
         fit = np.array([i.fitness for i in self.population])

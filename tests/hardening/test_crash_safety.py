@@ -24,6 +24,7 @@ from instgen.evolve.checkpoint import load_checkpoint
 from instgen.export import check_export
 from instgen.io import load_instance, save_instance
 from instgen.library import Library
+from instgen.make import make_instance
 from instgen.planted import plant
 
 PRESET = """
@@ -185,3 +186,80 @@ def test_library_export_killed_midway_leaves_only_complete_files(tmp_path, capsy
     code, _, _, _ = run(["library", "export", "--all", "--format", formats, "--to", out, "--overwrite",
                          "--library", root], capsys)
     assert code == 0
+
+
+# ------------------------------------------------------------------ full disk
+def _disk_full(*args, **kwargs):
+    raise OSError(28, "No space left on device")
+
+
+@pytest.mark.parametrize("argv", [
+    ["certify", "{tmp}/a.json", "--write"],
+    ["make", "chimera:1", "--seed", "3", "-o", "{tmp}/a.json"],
+    ["library", "add", "{tmp}/b.json", "--library", "{tmp}/lib"],
+    ["library", "export", "--all", "--to", "{tmp}/lib-out", "--library", "{tmp}/lib"],
+    ["plant", "chimera:1", "--seed", "2", "-o", "{tmp}/a.json"],
+], ids=["certify --write", "make over a file", "library add", "library export", "plant over a file"])
+def test_a_full_disk_loses_nothing(tmp_path, capsys, monkeypatch, argv):
+    """Every write goes through a temporary file; when the disk is full the old file stays and the
+    temporary goes (simulated by failing the flush to disk, as a full disk would)."""
+    from hardcases import refused
+
+    home = tmp_path / "home"  # watched; the export's target folder sits beside it and may be left empty
+    home.mkdir()
+    save_instance(make_instance("chimera:1", "pm1", seed=1), home / "a.json")
+    save_instance(make_instance("chimera:1", "pm1", seed=2), home / "b.json")
+    with Library.open(home / "lib", create=True) as lib:
+        lib.add(make_instance("chimera:1", "pm1", seed=1))
+    monkeypatch.chdir(home)
+    monkeypatch.setattr(os, "fsync", _disk_full)
+    argv = [a.replace("{tmp}/lib-out", str(tmp_path / "lib-out")).replace("{tmp}", str(home)) for a in argv]
+    refused(argv, capsys, home, "No space left on device")
+    out = tmp_path / "lib-out"
+    assert not out.exists() or not any(out.iterdir())
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("where", ["checkpoint", "log"])
+def test_a_disk_that_fills_during_breeding_keeps_the_last_checkpoint(tmp_path, capsys, monkeypatch, where):
+    """The disk fills after two generations: the run stops with one line, the checkpoint of the last
+    finished generation is whole, and --resume (once there is room) finishes the run."""
+    import builtins
+
+    import instgen.evolve.engine as engine
+
+    preset = tmp_path / "tiny.toml"
+    preset.write_text(PRESET.replace("generations = 25", "generations = 4"))
+    out = tmp_path / "run"
+    real_fsync, real_open = os.fsync, builtins.open
+    full = {"now": False, "once": True}
+
+    def fsync(fd):
+        if full["now"]:
+            _disk_full()
+        return real_fsync(fd)
+
+    def log_open(path, mode="r", *args, **kwargs):  # the run log is appended to, not replaced
+        if full["now"] and str(path).endswith("log.jsonl") and "a" in mode:
+            _disk_full()
+        return real_open(path, mode, *args, **kwargs)
+
+    def progress(record):
+        if record["generation"] == 2 and full["once"]:
+            full["now"], full["once"] = True, False
+
+    monkeypatch.setattr(os, "fsync", fsync) if where == "checkpoint" else monkeypatch.setattr(
+        engine, "open", log_open, raising=False)
+    real_breed = engine.breed
+    monkeypatch.setattr(engine, "breed",
+                        lambda cfg, out=None, **kw: real_breed(cfg, out, **{**kw, "progress": progress}))
+    code, _, err, _ = run(["breed", preset, "--out", out, "--no-report", "--quiet"], capsys)
+    assert code == 2 and err.count("\n") == 1 and "No space left on device" in err
+    kept = load_checkpoint(out)["generation"]
+    # the disk fills while generation 2 is being saved (or generation 3 logged): what stays is the
+    # checkpoint of the last generation that finished whole
+    assert kept == {"checkpoint": 2, "log": 3}[where]
+    full["now"] = False
+    code, _, err, _ = run(["breed", preset, "--out", out, "--resume", "--no-report", "--quiet"], capsys)
+    assert code == 0, err
+    assert len(_without_clocks(out / "log.jsonl")) == 4 and (out / "summary.json").exists()
