@@ -26,8 +26,13 @@ recomputed from everything seen (see :func:`pool`).
 Named metric values (what the number means):
 
 ``tts``       log10 of time-to-solution TTS99 in sweeps at the best sweep count
-              of the grid; a candidate whose ground state was never reached is
-              scored as if one read had succeeded (a lower bound, flagged).
+              of the grid among those where the ground state was reached (a
+              sweep count with no success gives only a bound and is left out
+              of the minimum, so a hard candidate is not capped by its shortest
+              anneal); a candidate whose ground state was never reached is
+              scored as if one read had succeeded at the largest sweep count
+              (a lower bound, flagged), which ranks it above every candidate
+              that was solved.
 ``gap``       (mean E after ``short_sweeps`` - mean E after ``long_sweeps``) / (n * scale):
               how much an instance still improves late in an anneal.
 ``residual``  (mean E after ``long_sweeps`` - reference) / (n * scale).
@@ -245,7 +250,8 @@ def tts_from_energies(energies: dict[int, np.ndarray], reference: float) -> dict
         p_used = (1.0 / (reads + 1)) if bounded else p
         rows.append({"sweeps": sweeps, "hits": hits, "reads": reads, "p": p, "tts": tts(p_used, sweeps),
                      "bound": bounded})
-    best = min(rows, key=lambda r: r["tts"])
+    solved = [r for r in rows if not r["bound"]]
+    best = min(solved, key=lambda r: r["tts"]) if solved else rows[-1]
     return {"tts": best["tts"], "sweeps": best["sweeps"], "bound": best["bound"],
             "at_edge": len(rows) > 1 and best["sweeps"] in (rows[0]["sweeps"], rows[-1]["sweeps"]), "grid": rows}
 
