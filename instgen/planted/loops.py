@@ -33,6 +33,7 @@ import dataclasses
 import numpy as np
 
 from ..errors import CertificationError, FormatError, InputError, ResourceError
+from ..couplings import MAX_MAGNITUDE
 from ..seeds import as_generator
 from . import PlantedFamily, construction_of
 
@@ -446,8 +447,9 @@ def plant_loops(graph, density: float = 0.3, seed=None, *, min_length: int = 4, 
     if not (isinstance(density, (int, float)) and np.isfinite(density) and density > 0):
         raise InputError(f"loop density must be a positive number of loops per spin, got {density!r}")
     w = np.asarray(weights, dtype=np.float64).reshape(-1)
-    if w.size == 0 or not np.all(np.isfinite(w)) or np.any(w <= 0):
-        raise InputError(f"loop weights must be positive numbers, got {weights!r}")
+    if w.size == 0 or not np.all(np.isfinite(w)) or np.any(w <= 0) or np.any(w > MAX_MAGNITUDE):
+        raise InputError(f"loop weights must be positive numbers no larger than {MAX_MAGNITUDE:g}, "
+                         f"got {weights!r}")
     if cap is not None and not (np.isfinite(cap) and cap >= w.min()):
         raise InputError(f"the cap must be at least the smallest loop weight ({w.min():g}), got {cap!r}")
     topo = topology(graph)

@@ -35,10 +35,11 @@ import functools
 
 import numpy as np
 
-from ..errors import CertificationError, FormatError, InputError
+from ..errors import CertificationError, FormatError, InputError, ResourceError
+from ..couplings import MAX_MAGNITUDE
 from ..seeds import as_generator
 from . import PlantedFamily, construction_of, planted_gauge_couplings
-from .loops import Loop, LoopGraph, check_loop, fits, random_loop
+from .loops import MAX_LOOPS, Loop, LoopGraph, check_loop, fits, random_loop
 from .sites import SHAPES, Sites, applicable_shapes, check_shapes
 from .tiles import ground_state_ok
 
@@ -265,14 +266,18 @@ def plant_terms(graph, density: float = 0.3, seed=None, *, kinds="loop,ball", ca
     if not (isinstance(density, (int, float)) and np.isfinite(density) and density > 0):
         raise InputError(f"density must be a positive number of terms per spin, got {density!r}")
     w = np.asarray(weights, dtype=np.float64).reshape(-1)
-    if w.size == 0 or not np.all(np.isfinite(w)) or np.any(w <= 0):
-        raise InputError(f"weights must be positive numbers, got {weights!r}")
+    if w.size == 0 or not np.all(np.isfinite(w)) or np.any(w <= 0) or np.any(w > MAX_MAGNITUDE):
+        raise InputError(f"weights must be positive numbers no larger than {MAX_MAGNITUDE:g}, "
+                         f"got {weights!r}")
     if cap is not None and not (np.isfinite(cap) and cap >= w.min()):
         raise InputError(f"the cap must be at least the smallest weight ({w.min():g}), got {cap!r}")
     if not 2 <= int(patch_size) <= MAX_PATCH_SPINS:
         raise InputError(f"patch_size must lie between 2 and {MAX_PATCH_SPINS}, got {patch_size!r}")
     kinds = parse_kinds(kinds)
     topo = _topology(graph)
+    if density * topo.n > MAX_LOOPS:
+        raise ResourceError(f"density {density:g} on {topo.n:,} spins means {density * topo.n:.3g} terms; "
+                            f"instgen plants at most {MAX_LOOPS:,} per instance")
     rng = as_generator(seed)
     sites = {k: Sites.of(topo, k, patch_size) for k in kinds if k != "loop"}
     lg = LoopGraph.of(topo) if "loop" in kinds else None
