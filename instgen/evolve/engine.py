@@ -415,6 +415,10 @@ def breed(cfg: dict, out=None, fitness=None, executor=None, resume: bool = False
     from .finish import finish
 
     out = Path(out or cfg["run"]["output"])
+    if cfg["library"]["path"]:  # the winners are filed at the end: a wrong folder is named before the run
+        from ..library import Library
+
+        Library.check_location(cfg["library"]["path"])
     breeder = Breeder(cfg, out, executor=executor, fitness=fitness, progress=progress)
     result = breeder.run(resume=resume)
     return finish(breeder, result)

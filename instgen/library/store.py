@@ -49,6 +49,12 @@ SORT_KEYS = ("added", "id", "graph", "n", "m", "energy", "value")
 _HEX = set("0123456789abcdef")
 
 
+def _check_new_location(root: Path) -> None:
+    own = {ENTRIES_DIR, INDEX_NAME, INDEX_NAME + "-wal", INDEX_NAME + "-shm", INDEX_NAME + "-journal"}
+    if root.exists() and (not root.is_dir() or any(p.name not in own for p in root.iterdir())):
+        raise LibraryError(f"{root} exists and is not an instgen library; choose a new or empty folder")
+
+
 def default_location() -> Path:
     """``$INSTGEN_LIBRARY`` if set, else ``./library``."""
     return Path(os.environ.get(ENV_VAR) or "library")
@@ -116,9 +122,7 @@ class Library:
                 if root.is_dir():
                     raise LibraryError(f"{root} is not an instgen library (it has no {INDEX_NAME})")
                 raise LibraryError(f"no library at {root}; `instgen library add FILE --library {root}` creates one")
-            own = {ENTRIES_DIR, INDEX_NAME, INDEX_NAME + "-wal", INDEX_NAME + "-shm", INDEX_NAME + "-journal"}
-            if root.exists() and (not root.is_dir() or any(p.name not in own for p in root.iterdir())):
-                raise LibraryError(f"{root} exists and is not an instgen library; choose a new or empty folder")
+            _check_new_location(root)
             try:
                 (root / ENTRIES_DIR).mkdir(parents=True, exist_ok=True)
             except OSError as exc:
@@ -145,6 +149,19 @@ class Library:
             con.close()
             raise
         return cls(root, con)
+
+    @classmethod
+    def check_location(cls, path) -> None:
+        """Raise LibraryError now for a folder ``open(path, create=True)`` would refuse; creates nothing.
+
+        For work that files into a library only at its end (breeding), so a
+        wrong folder is named before the work, not after it.
+        """
+        root = Path(path)
+        if (root / INDEX_NAME).exists():
+            cls.open(root).close()  # also checks the schema version and the fingerprint scheme
+        else:
+            _check_new_location(root)
 
     def close(self) -> None:
         self._con.close()

@@ -128,6 +128,8 @@ BREED_FLAGS = [
     ("absurd graph flag", ["--graph", "zephyr:999"], "nodes"),
     ("NaN coupling flag", ["--couplings", "levels:nan"], "finite"),
     ("resume with nothing to resume", ["--resume"], "no checkpoint"),
+    ("library in a folder of other things", ["--library", "{tmp}"], "not an instgen library"),
+    ("library path that is a file", ["--library", "{tmp}/preset.toml"], "not an instgen library"),
 ]
 
 
@@ -135,7 +137,7 @@ BREED_FLAGS = [
 def test_bad_breed_flags(here, capsys, flags, needle):
     p = here / "preset.toml"
     p.write_text(preset_text({}))
-    refused(breed(here, p, *flags), capsys, here, needle)
+    refused(breed(here, p, *[str(f).replace("{tmp}", str(here)) for f in flags]), capsys, here, needle)
 
 
 def _checkpoint_hash(preset):
