@@ -15,7 +15,7 @@ import warnings
 from pathlib import Path
 
 from instgen.cli import main
-from instgen.io import dumps_instance, save_instance
+from instgen.io import dumps_instance
 from instgen.library import Library
 from instgen.make import make_instance
 
@@ -92,4 +92,4 @@ def copy_tree(src, dst) -> Path:
     return Path(dst)
 
 
-__all__ = ["snapshot", "run", "refused", "good_doc", "write_doc", "make_library", "copy_tree", "save_instance"]
+__all__ = ["snapshot", "run", "refused", "good_doc", "write_doc", "make_library", "copy_tree"]
