@@ -15,11 +15,13 @@ from __future__ import annotations
 
 import copy
 import json
+import shutil
 import tempfile
 import tomllib
 from pathlib import Path
 
 import numpy as np
+import pytest
 from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 
@@ -34,6 +36,12 @@ def fuzz(examples):
 
 #: One folder for the files the examples write (hypothesis and function-scoped fixtures do not mix).
 SCRATCH = Path(tempfile.mkdtemp(prefix="instgen-fuzz-"))
+
+@pytest.fixture(scope="module", autouse=True)
+def _remove_scratch():
+    yield
+    shutil.rmtree(SCRATCH, ignore_errors=True)
+
 
 GOOD_TEXT = dumps_instance(make_instance("chimera:1", "int:2", "pm1", seed=3))
 GOOD = json.loads(GOOD_TEXT)
