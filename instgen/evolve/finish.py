@@ -121,6 +121,7 @@ def finish(breeder, result: dict) -> dict:
         "run": {"name": cfg["run"]["name"], "id": run_id, "seed": cfg["run"]["seed"], "graph": ctx.graph,
                 "n": ctx.n, "m": len(ctx.edges), "rules": ctx.rules, "metric": ctx.metric,
                 "sampler": ctx.sampler, "solvers": list(dict.fromkeys([ctx.sampler] + cfg["fitness"]["solvers"])),
+                "search_solvers": list(ctx.solvers),
                 "sweeps": list(ctx.sweeps), "beta_range": list(ctx.beta_range), "preset_hash": preset_hash(cfg),
                 "folder": str(out)},
         "stopped": result["stopped"], "generations": result["generations"], "evaluations": result["evaluations"],

@@ -50,7 +50,9 @@ def print_summary(summary: dict, stream=None) -> None:
     w(f"\nrun {run['name']} on {run['graph']} ({run['n']} spins, {run['m']} couplings, "
       f"couplings {run['rules']['couplings']}): stopped after {summary['generations']} generations "
       f"({summary['stopped']}), {summary['evaluations']} evaluations in {summary['elapsed']:.0f} s\n")
-    w(f"fitness: {run['metric']} on {run['sampler']}; figures below re-measured on fresh seeds "
+    searched = run["sampler"] + ("".join(f", {x}" for x in run.get("search_solvers", [])))
+    least = " (the least over these)" if run.get("search_solvers") else ""
+    w(f"fitness: {run['metric']} on {searched}{least}; figures below re-measured on fresh seeds "
       f"against the certified energy\n\n")
     winners = summary["winners"]
     if winners:

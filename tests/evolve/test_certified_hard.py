@@ -232,7 +232,7 @@ def test_breed_reports_planted_energy_certificate_and_baseline(tmp_path, capsys)
     from instgen.evolve.engine import breed
     from instgen.report.summary import print_summary
 
-    cfg = _tiny(library__baseline=2, fitness__solvers=["sa"])
+    cfg = _tiny(library__baseline=2, fitness__solvers=["sa"], fitness__search_solvers=["tabu"])
     summary = breed(cfg, tmp_path / "run")
     assert summary["winners"]
     for e in summary["winners"]:
@@ -245,6 +245,7 @@ def test_breed_reports_planted_energy_certificate_and_baseline(tmp_path, capsys)
     print_summary(summary)
     out = capsys.readouterr().out
     assert "planted energies" in out and "random baseline" in out
+    assert "fitness: tts on fast-sa, tabu (the least over these)" in out
     assert "baseline reference energ" in out
 
 
