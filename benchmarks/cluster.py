@@ -1,20 +1,23 @@
 """What a Dask cluster buys a breeding run: measured on 2 local workers, estimated for 64 and 512.
 
-Run with ``.venv/bin/python -m benchmarks.cluster`` (about two minutes on a
+Run with ``.venv/bin/python -m benchmarks.cluster`` (about four minutes on a
 2-core laptop; the machine should be otherwise idle).  Everything is measured
 in this one run:
 
-1. **Speed-up of a generation** (demo preset): one generation's work (every
+1. **Speed-up of a generation** (the quench-study preset on chimera:8, the
+   way a lab scales it up; a few tenths of a second per candidate): one generation's work (every
    candidate measured, the best two confirmed with more reads) done serially
-   and on ``local:2``, alternating, on the same candidates and seeds (and
-   checked to give the same energies).  Alternating keeps drifting load on a
+   and on ``local:2`` (and, for comparison, on the process pool of 2 that
+   needs no dask), alternating, on the same candidates and seeds (and checked
+   to give the same energies).  Alternating keeps drifting load on a
    shared machine from favouring either side.  The cluster's first generation
    is its timing pass (one candidate per task) and is shown apart.
 2. **Overhead per task**: candidates too small to matter (8 spins, one read,
    one sweep), sent one per task; the wall time per task beyond the work.
 3. **A paper estimate** for 64 and 512 workers, for every preset in
    ``presets/``: task times and the serial part of a generation (selection,
-   variation, bookkeeping, checkpoint) measured serially here, put into
+   variation, bookkeeping, checkpoint) measured serially here (two generations;
+   single candidates for presets whose generation is too long to run here), put into
    ``T(W) = serial + 2 * latency + overhead * tasks + ceil(P/W) * t_search + ceil(C/W) * t_confirm``
    (P candidates measured per generation, C confirmed).  Amdahl's bound with the
    measured serial fraction is printed beside it.  The work after the search
@@ -36,7 +39,7 @@ import numpy as np
 from instgen.errors import InstgenError
 from instgen.evolve.cluster import DaskExecutor
 from instgen.evolve.engine import Breeder
-from instgen.evolve.executors import SerialExecutor, evaluate
+from instgen.evolve.executors import PoolExecutor, SerialExecutor, evaluate
 from instgen.evolve.finish import finish
 from instgen.preset import load_preset, override, validate
 
@@ -44,6 +47,10 @@ from .samplers import cpu_model
 
 PRESETS = sorted((Path(__file__).parents[1] / "presets").glob("*.toml"))
 WORKERS = (2, 64, 512)
+#: Journey D scales the quench study up to a bigger graph: that generation is timed on 2 workers.
+SPEEDUP_PRESET, SPEEDUP_GRAPH = "quench-study", "chimera:8"
+#: Presets whose generation would take longer than this (serially) are profiled on single candidates.
+PROFILE_SECONDS = 15.0
 
 
 class TimedSerial(SerialExecutor):
@@ -102,33 +109,39 @@ def _timed(executor, work) -> tuple[float, list]:
 
 
 def speedup(tmp: Path, repeats: int = 3) -> None:
-    cfg = override(load_preset(_preset("demo")), ["search.workers=1"])
+    cfg = override(load_preset(_preset(SPEEDUP_PRESET)), ["search.workers=1", f'graph.spec="{SPEEDUP_GRAPH}"'])
     ctx = Breeder(cfg, tmp / "speed").ctx
-    serial, cluster = SerialExecutor(), DaskExecutor("local:2")
+    f, sr = cfg["fitness"], cfg["search"]
+    serial, pool, cluster = SerialExecutor(), PoolExecutor(2), DaskExecutor("local:2")
     serial.start(ctx)
+    pool.start(ctx)
     t0 = time.perf_counter()
     cluster.start(ctx)
     started = time.perf_counter() - t0
     first, _ = _timed(cluster, _generation_tasks(cfg, ctx, 0))  # the timing pass: one candidate per task
-    pairs = []
+    _timed(pool, _generation_tasks(cfg, ctx, 0))  # start the pool's processes
+    rows = []
     try:
         for r in range(1, repeats + 1):
             work = _generation_tasks(cfg, ctx, r)
             a, expected = _timed(serial, work)
             b, got = _timed(cluster, work)
-            assert got == expected, "the cluster's measurements differ from the serial ones"
-            pairs.append((a, b))
+            c, pooled = _timed(pool, work)
+            assert got == expected == pooled, "the executors' measurements differ"
+            rows.append((a, b, c))
     finally:
         cluster.close()
+        pool.close()
     tasks = cluster.timings[cfg["search"]["population"]:]
-    print("\n1. One generation of presets/demo.toml (chimera:3, 16 candidates x 48 reads, 2 confirmed x 200 reads)")
+    print(f"\n1. One generation of presets/{SPEEDUP_PRESET}.toml ({cfg['graph']['spec']}, {f['sampler']}, "
+          f"{sr['population']} candidates x {f['reads']} reads, {sr['confirm_top']} confirmed x {f['confirm_reads']} reads)")
     print(f"   starting local:2 took {started:.1f} s; its first generation (one candidate per task, timed) {first:.2f} s")
-    print(f"   {'repeat':>6} {'serial s':>9} {'local:2 s':>10} {'speed-up':>9}")
-    for r, (a, b) in enumerate(pairs, 1):
-        print(f"   {r:>6} {a:9.2f} {b:10.2f} {a / b:8.2f}x")
-    ratios = sorted(a / b for a, b in pairs)
-    print(f"   median speed-up on 2 workers: {statistics.median(ratios):.2f}x (serial and cluster alternate, "
-          "same candidates, same results)")
+    print(f"   {'repeat':>6} {'serial s':>9} {'local:2 s':>10} {'speed-up':>9} {'pool:2 s':>9} {'speed-up':>9}")
+    for r, (a, b, c) in enumerate(rows, 1):
+        print(f"   {r:>6} {a:9.2f} {b:10.2f} {a / b:8.2f}x {c:9.2f} {a / c:8.2f}x")
+    print(f"   median speed-up on 2 workers: local:2 {statistics.median(a / b for a, b, _ in rows):.2f}x, "
+          f"process pool of 2 (no dask, for comparison) {statistics.median(a / c for a, _, c in rows):.2f}x; "
+          "the three alternate on the same candidates and give the same energies")
     print(f"   cluster tasks after the timing pass: {len(tasks)}, {min(n for n, _ in tasks)}-"
           f"{max(n for n, _ in tasks)} candidates each, worker seconds per task median "
           f"{statistics.median(x for _, x in tasks):.2f} (min {min(x for _, x in tasks):.2f})")
@@ -169,33 +182,49 @@ def _preset(name: str) -> Path:
     return next(p for p in PRESETS if p.stem == name)
 
 
+def _one(ctx, task) -> float:
+    t0 = time.perf_counter()
+    evaluate(ctx, task)
+    return time.perf_counter() - t0
+
+
 def profile_preset(path: Path, tmp: Path) -> dict:
-    """Serial task times and serial part of a generation for one preset (2 generations)."""
+    """Serial task times and the client's own seconds per generation, for one preset.
+
+    Two generations are bred serially when that is quick; otherwise one search
+    and one confirmation candidate are timed and the client's part is left out
+    (``serial`` None: small beside such tasks, but not measured).
+    """
     generations = load_preset(path)["search"]["generations"]
     cfg = override(load_preset(path), ["search.generations=2", "search.workers=1",
                                        f'library.path="{tmp / "lib"}"'])
+    s, f = cfg["search"], cfg["fitness"]
+    row = {"name": path.stem, "P": s["population"], "C": s["confirm_top"], "generations": generations,
+           "graph": cfg["graph"]["spec"], "after": None}
+    ctx = Breeder(cfg, tmp / f"{path.stem}-probe").ctx
+    search, confirm = _generation_tasks(cfg, ctx, 99)
+    _one(ctx, {**search[0], "reads": 1})  # warm-up (compiles the sampler where it needs it)
+    t_search = _one(ctx, search[0])
+    if t_search * (s["population"] + s["confirm_top"] * f["confirm_reads"] / f["reads"]) > PROFILE_SECONDS:
+        return {**row, "t_search": t_search, "t_confirm": _one(ctx, confirm[0]), "serial": None}
     ex, marks = TimedSerial(), []
     breeder, result, gens = _run(cfg, tmp / path.stem, ex, marks)
-    after = None
     if path.stem == "demo":  # the work after the search, once per run, in the client
         t0 = time.perf_counter()
         finish(breeder, result)
-        after = time.perf_counter() - t0
-    s = cfg["search"]
-    reads = cfg["fitness"]["reads"]
-    search = [t for r, t in ex.tasks if r == reads]
-    confirm = [t for r, t in ex.tasks if r != reads] or search
-    # Generation 2's wall time between progress calls, minus its two maps, is the client's own work.
+        row["after"] = time.perf_counter() - t0
+    searched = [t for r, t in ex.tasks if r == f["reads"]]
+    confirmed = [t for r, t in ex.tasks if r != f["reads"]] or searched
+    # Generation 2's wall time between progress calls, minus its maps, is the client's own work.
     serial_part = gens[1] - sum(ex.maps[marks[0]:marks[1]])
-    return {"name": path.stem, "P": s["population"], "C": s["confirm_top"], "t_search": statistics.median(search),
-            "t_confirm": statistics.median(confirm), "serial": max(serial_part, 0.0),
-            "generations": generations, "graph": cfg["graph"]["spec"], "after": after}
+    return {**row, "t_search": statistics.median(searched), "t_confirm": statistics.median(confirmed),
+            "serial": max(serial_part, 0.0)}
 
 
 def model(p: dict, workers: int, over: dict, task_seconds: float = 0.5) -> float:
     """Seconds per generation on ``workers`` workers (see the module docstring)."""
     tasks = min(p["P"], max(workers, math.ceil(p["P"] * p["t_search"] / task_seconds))) + p["C"]
-    return (p["serial"] + 2 * over["latency"] + over["per_task"] * tasks
+    return ((p["serial"] or 0.0) + 2 * over["latency"] + over["per_task"] * tasks
             + math.ceil(p["P"] / workers) * p["t_search"] + math.ceil(p["C"] / workers) * p["t_confirm"])
 
 
@@ -210,34 +239,46 @@ def estimate(tmp: Path, over: dict):
         except InstgenError as exc:
             print(f"   {path.stem:<18} could not be bred here: {exc}")
             continue
-        t1 = p["P"] * p["t_search"] + p["C"] * p["t_confirm"] + p["serial"]
-        f = p["serial"] / t1
-        amdahl = 1 / (f + (1 - f) / 512)
-        limit = t1 / (p["serial"] + p["t_search"] + p["t_confirm"])
+        serial = p["serial"] or 0.0
+        t1 = p["P"] * p["t_search"] + p["C"] * p["t_confirm"] + serial
+        f = serial / t1
+        amdahl = f"{1 / (f + (1 - f) / 512):8.0f}x" if p["serial"] is not None else f"{'-':>9}"
+        limit = t1 / (serial + p["t_search"] + p["t_confirm"])
+        shown = f"{p['serial']:7.3f}" if p["serial"] is not None else f"{'-':>7}"
         print(f"   {p['name']:<18} {p['graph']:<12} {p['P']:>3} {p['C']:>2} {p['t_search']:8.3f} "
-              f"{p['t_confirm']:7.3f} {p['serial']:7.3f}" + "".join(f" {t1 / model(p, w, over):6.1f}x" for w in WORKERS)
-              + f" {amdahl:8.0f}x {limit:5.1f}x")
+              f"{p['t_confirm']:7.3f} {shown}" + "".join(f" {t1 / model(p, w, over):6.1f}x" for w in WORKERS)
+              + f" {amdahl} {limit:5.1f}x")
         rows.append((p, t1))
     print("   P: candidates measured per generation (whole population, elites re-measured); C: confirmations;")
     print("   t_*: seconds per candidate; serial: the client's own seconds per generation; S(W): modelled")
     print("   speed-up on W workers; Amdahl512: the bound from the serial fraction alone; limit: one")
     print("   candidate per task, so no generation is faster than serial + t_search + t_confirm.")
-    if not any(p["name"] == "demo" for p, _ in rows):
-        return
-    p, t1 = next((p, t1) for p, t1 in rows if p["name"] == "demo")
+    print(f"   '-': a generation would take over {PROFILE_SECONDS:g} s here, so single candidates were timed and the")
+    print("   client's own part was not measured (left out of S).")
+    for p, t1 in rows:
+        if p["after"] is not None:
+            _whole_run(p, t1, over)
+    p = next((p for p, _ in rows if p["name"] == SPEEDUP_PRESET and p["serial"] is not None), None)
+    if p is not None:
+        grown = {**p, "P": 512, "serial": p["serial"] / p["P"] * 512}
+        t512 = grown["P"] * grown["t_search"] + grown["C"] * grown["t_confirm"] + grown["serial"]
+        print(f"   {SPEEDUP_PRESET} grown to population 512 (client's part scaled per candidate): "
+              f"S(64) {t512 / model(grown, 64, over):.0f}x, S(512) {t512 / model(grown, 512, over):.0f}x; "
+              f"client's part {grown['serial']:.2f} s and scheduler {over['per_task'] * (512 + grown['C']):.2f} s "
+              f"per generation vs {grown['t_search'] + grown['t_confirm']:.2f} s of tasks on the critical path")
+
+
+def _whole_run(p: dict, t1: float, over: dict):
+    """A whole run: the search, then the work after it (measured here), which runs in the client."""
     after = p["after"]
-    print(f"   demo, whole run of {p['generations']} generations: serially ~{p['generations'] * t1:.0f} s of search "
-          f"and {after:.0f} s after it (certify 6, re-measure, 6 random for comparison, file; measured here)")
+    print(f"   {p['name']}, whole run of {p['generations']} generations (if no stopping rule fires first): "
+          f"serially ~{p['generations'] * t1:.0f} s of search, then {after:.0f} s after it (certify, re-measure, "
+          "random baseline, file; measured here)")
     for w in WORKERS[1:]:
         search = p["generations"] * model(p, w, over)
         print(f"     on {w} workers: search ~{search:.0f} s, then the same {after:.0f} s in the client "
               f"= {after / (search + after):.0%} of the run; whole-run speed-up "
               f"{(p['generations'] * t1 + after) / (search + after):.1f}x")
-    grown = {**p, "P": 512, "serial": p["serial"] / p["P"] * 512}
-    t512 = grown["P"] * grown["t_search"] + grown["C"] * grown["t_confirm"] + grown["serial"]
-    print(f"   demo grown to population 512 (serial part scaled per candidate): "
-          f"S(64) {t512 / model(grown, 64, over):.0f}x, S(512) {t512 / model(grown, 512, over):.0f}x; "
-          f"scheduler overhead {over['per_task'] * (512 + grown['C']):.2f} s vs task {grown['t_search']:.2f} s")
 
 
 def main():
