@@ -44,7 +44,7 @@ def settings(args):
         "graph": {"spec": args.graph},
         "couplings": {"alphabet": "pm1"},
         "fitness": {"metric": "tts", "sampler": args.sampler, "sweeps": args.sweeps, "reads": args.reads,
-                    "confirm_reads": 4 * args.reads, "reference": "best-found"},
+                    "confirm_reads": 4 * args.reads, "reference": args.reference},
         "search": {"population": 16, "generations": 10**6, "elites": 3, "workers": 1, "time_budget": args.budget,
                    "confirm_top": 2, "hall_of_fame": args.top, "mutation_rate": 0.03},
         "library": {"count": 0, "baseline": 0},
@@ -137,6 +137,8 @@ def main(argv=None):
     p.add_argument("--top", type=int, default=3)
     p.add_argument("--baseline", type=int, default=10)
     p.add_argument("--seed", type=int, default=1)
+    p.add_argument("--reference", default="confirm-certified",
+                   help="the engine's reference energy: confirm-certified (default) or best-found")
     p.add_argument("--out", default="outputs/bench-engine")
     args = p.parse_args(argv)
     cfg = settings(args)

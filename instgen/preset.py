@@ -148,7 +148,7 @@ SCHEMA: dict[str, dict[str, tuple]] = {
     },
 }
 
-REFERENCES = ("auto", "planted", "certified", "best-found")
+REFERENCES = ("auto", "planted", "certified", "confirm-certified", "best-found")
 
 
 def defaults() -> dict:

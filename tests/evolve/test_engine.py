@@ -133,3 +133,17 @@ def test_loop_genome_children_keep_the_planted_state(tmp_path):
         assert np.abs(J).max() <= 2
         if ind.measurement is not None:  # children of the last generation are not measured yet
             assert ind.details["reference"] == pytest.approx(e0)
+
+
+def test_confirmation_against_a_proven_optimum(tmp_path):
+    # reference = "confirm-certified": the hall of fame's figures are measured against the exact
+    # ground-state energy (checked here with dimod's ExactSolver, a reference library).
+    import dimod
+
+    br = Breeder(tiny(fitness__reference="confirm-certified"), tmp_path / "cc")
+    br.run()
+    assert br.hall
+    for fam in br.hall:
+        J, h, _, _ = fam.genome.couplings()
+        exact = dimod.ExactSolver().sample(br.ctx.instance(J, h).to_bqm()).first.energy
+        assert fam.details["reference"] == pytest.approx(exact)
