@@ -247,6 +247,7 @@ def main(argv=None):
     p.add_argument("--out", default="outputs/benchmarks/certified-hard", help="folder for the run and the table")
     p.add_argument("--search-cpu", type=float, help="breeding budget in CPU seconds")
     p.add_argument("--seed", type=int, default=11, help="search seed")
+    p.add_argument("--measure-workers", type=int, default=2, help="processes measuring rows beside the search")
     args = p.parse_args(argv)
     plan = dict(SMOKE if args.smoke else QUICK if args.quick else FULL)
     budget = args.search_cpu or plan["search_cpu"]
@@ -258,7 +259,7 @@ def main(argv=None):
     results: dict = {r: [] for r in rows[:-1] + ["bred (this run)", "random ±1"]}
     ctx = mp.get_context("spawn")
     with cf.ProcessPoolExecutor(max_workers=1, mp_context=ctx) as search_pool, \
-            cf.ProcessPoolExecutor(max_workers=1, mp_context=ctx) as measure_pool:
+            cf.ProcessPoolExecutor(max_workers=args.measure_workers, mp_context=ctx) as measure_pool:
         search = search_pool.submit(_search, str(out / "run"), budget, plan["step"], args.seed, plan["graph"])
         jobs = [measure_pool.submit(_job, (row, k, plan, None, str(cache)))
                 for row in rows for k in range(plan["per_row"])]
