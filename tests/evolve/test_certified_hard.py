@@ -147,7 +147,6 @@ def test_a_patch_without_the_planted_ground_state_is_refused():
                 certify(inst, method="planted")
 
 
-@pytest.mark.slow
 def test_plant_terms_is_seeded_and_certified():
     a = pt.plant_terms("chimera:2", density=0.4, seed=3, kinds={"loop": 1, "cell": 1}, cap=2, weights=(1, 2))
     b = pt.plant_terms("chimera:2", density=0.4, seed=3, kinds={"loop": 1, "cell": 1}, cap=2, weights=(1, 2))
@@ -174,7 +173,6 @@ def _tiny(**changes):
     return validate(raw)
 
 
-@pytest.mark.slow
 def test_fitness_is_the_least_over_search_solvers_with_fixed_seeds():
     cfg = _tiny(fitness__search_solvers=["tabu", "sa"])
     ctx = Context.from_config(cfg, build_graph("chimera:1"))
