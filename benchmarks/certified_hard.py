@@ -35,12 +35,13 @@ import argparse
 import concurrent.futures as cf
 import json
 import multiprocessing as mp
-import platform
 import resource
 import time
 from pathlib import Path
 
 import numpy as np
+
+from benchmarks._machine import cpu_model
 
 GRAPH = "chimera:8"
 BETA = (0.1, 5.0)
@@ -61,17 +62,6 @@ SMOKE = {"graph": "chimera:2", "per_row": 2, "search_cpu": 10.0, "step": 1,
          "long": ("packed-sa", [400, 1600], 16)}
 #: Rows also measured with long anneals, where the reference grid may see no success at all.
 LONG_ROWS = ("bred (this run)", "random ±1")
-
-
-def cpu_model() -> str:
-    try:
-        with open("/proc/cpuinfo") as fh:
-            for line in fh:
-                if line.startswith("model name"):
-                    return line.split(":", 1)[1].strip()
-    except OSError:
-        pass
-    return platform.processor() or "unknown CPU"
 
 
 def _cpu() -> float:
