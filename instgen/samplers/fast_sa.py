@@ -9,7 +9,13 @@ only faster:
 * the graph is laid out once (a symmetric CSR adjacency, cached per graph) and
   every read of a candidate runs inside one compiled call;
 * in sequential order 64 replicas advance together in one vectorised loop,
-  each with its own random numbers (replicas are independent);
+  each with its own random numbers (replicas are independent), in single
+  precision: couplings, local fields and acceptance probabilities are float32
+  (about 1e-7 relative; fields are recomputed from scratch every 64 sweeps so
+  rounding cannot drift) and uniforms lie on a 2^-31 grid, so acceptance
+  probabilities below about 5e-10 count as zero.  Couplings are scaled by a
+  power of two into float32's range (and the betas by its inverse), and the
+  energies handed back are recomputed in double precision from the states;
 * in random order each replica runs on its own, with acceptance probabilities
   from a table built once per sweep when all couplings and fields are whole
   multiples of one step (pm1, int:K, levels on a grid);
@@ -19,8 +25,8 @@ only faster:
   process loads them instead of compiling; :func:`warm_up` pays that load up
   front (for example in a worker initialiser).
 
-Acceptance probabilities are exact to about 1e-14 relative (a polynomial
-exp); uniforms are on a 2^-52 grid.
+Random order works in double precision: acceptance probabilities exact to about
+1e-14 relative, uniforms on a 2^-52 grid.
 
 >>> from instgen.make import make_instance
 >>> from instgen.samplers import get_sampler, Schedule
@@ -289,7 +295,15 @@ class FastAnnealing(Sampler):
         out = np.empty((C, reads, lay.n), dtype=np.int8)
         betas = betas_of(schedule)
         if order == "sequential":
-            _lanes.anneal_lanes(lay.indptr, lay.indices, weights, h, betas, reads, seeds_arr, out)
+            # Single precision: scale couplings and fields by a power of two (exact) into
+            # float32's range and the betas by its inverse, so beta * dE is unchanged.
+            top = max(float(np.abs(weights).max(initial=0.0)), float(np.abs(h).max(initial=0.0)))
+            scale = 2.0 ** -np.floor(np.log2(top)) if top > 0 and not 2.0 ** -60 <= top < 2.0 ** 60 else 1.0
+            if scale != 1.0:
+                betas = betas / scale
+                betas.setflags(write=False)
+            _lanes.anneal_lanes(lay.indptr, lay.indices, (weights * scale).astype(np.float32),
+                                (h * scale).astype(np.float32), betas, reads, seeds_arr, out)
         else:
             step, top = common_step(J, h), 0
             if step > 0:
