@@ -13,9 +13,10 @@ How the work is shipped:
   plugin and hands it to every worker that joins later, so a worker restarted
   after a crash gets the context (and warms its sampler) before it takes a task.
 * One Dask task scores a contiguous batch of candidates.  The first ``map``
-  sends one candidate per task and times them; later batches hold as many
-  candidates as fit in ``task_seconds`` of worker time, but never so many that a
-  worker is left idle.  Results come back as small
+  sends one candidate per task and times them; later maps cut the candidates
+  into batches of about ``task_seconds`` of worker time, as many batches for
+  every worker and of about equal cost, so no worker waits idle at the end of a
+  map for another's extra batch.  Results come back as small
   :class:`~instgen.fitness.Measurement` records, in task order.
 * Each task carries its own seed, so batching and worker order never change a
   result: a cluster run equals the serial run bit for bit.
@@ -290,17 +291,32 @@ class DaskExecutor:
         return results
 
     def _plan(self, tasks: list[dict], workers: int) -> list[list[int]]:
-        """Contiguous batches of task indices: ~``task_seconds`` each, at least one per worker."""
+        """Contiguous batches of task indices, the same number for every worker, of about equal cost.
+
+        The batch count is a multiple of ``workers`` chosen so a batch costs about
+        ``task_seconds`` (never fewer batches than workers, never more than
+        tasks); cut points fall where the running cost crosses each equal share,
+        so with equal-cost tasks every worker gets the same work and none idles
+        at the end of the map waiting for another's extra batch.
+
+        >>> ex = DaskExecutor("local:2", task_seconds=0.5)
+        >>> ex.per_read = 0.01
+        >>> [len(b) for b in ex._plan([{"reads": 10}] * 20, workers=2)]  # 2 s of work: 4 batches
+        [5, 5, 5, 5]
+        """
         if self.per_read is None:
             return [[i] for i in range(len(tasks))]
+        workers = max(1, workers)
         cost = [t["reads"] * self.per_read for t in tasks]
-        share = sum(cost) / max(1, workers)
-        budget = min(self.task_seconds, share) * 1.0001
+        total = sum(cost)
+        rounds = max(1, round(total / (workers * self.task_seconds))) if self.task_seconds > 0 else len(tasks)
+        count = min(len(tasks), workers * rounds)
         batches, current, filled = [], [], 0.0
         for i, c in enumerate(cost):
-            if current and filled + c > budget:
+            # close the batch when this task's midpoint lies past the next equal share
+            if current and filled + c / 2 > total * (len(batches) + 1) / count:
                 batches.append(current)
-                current, filled = [], 0.0
+                current = []
             current.append(i)
             filled += c
         batches.append(current)
