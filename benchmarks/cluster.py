@@ -5,7 +5,8 @@ Run with ``.venv/bin/python -m benchmarks.cluster`` (about four minutes on a
 in this one run:
 
 1. **Speed-up of a generation** (the quench-study preset on chimera:8, the
-   way a lab scales it up; a few tenths of a second per candidate): one generation's work (every
+   way a lab scales it up; about a tenth of a second per candidate; then, as 1b,
+   a campaign-sized generation of 48 candidates on chimera:12): one generation's work (every
    candidate measured, the best two confirmed with more reads) done serially
    and on ``local:2`` (and, for comparison, on the process pool of 2 that
    needs no dask), alternating, on the same candidates and seeds (and checked
@@ -49,6 +50,8 @@ PRESETS = sorted((Path(__file__).parents[1] / "presets").glob("*.toml"))
 WORKERS = (2, 64, 512)
 #: Journey D scales the quench study up to a bigger graph: that generation is timed on 2 workers.
 SPEEDUP_PRESET, SPEEDUP_GRAPH = "quench-study", "chimera:8"
+#: ...and a campaign-sized generation, the kind a cluster is for: the same preset, larger graph and population.
+CAMPAIGN_GRAPH, CAMPAIGN_POPULATION = "chimera:12", 48
 #: Presets whose generation would take longer than this (serially) are profiled on single candidates.
 PROFILE_SECONDS = 15.0
 
@@ -108,9 +111,11 @@ def _timed(executor, work) -> tuple[float, list]:
     return time.perf_counter() - t0, [{k: e.tolist() for k, e in m.energies.items()} for m in results]
 
 
-def speedup(tmp: Path, repeats: int = 3) -> None:
-    cfg = override(load_preset(_preset(SPEEDUP_PRESET)), ["search.workers=1", f'graph.spec="{SPEEDUP_GRAPH}"'])
-    ctx = Breeder(cfg, tmp / "speed").ctx
+def speedup(tmp: Path, repeats: int = 5, graph: str = SPEEDUP_GRAPH, population: int | None = None,
+            label: str = "1.") -> None:
+    changes = ["search.workers=1", f'graph.spec="{graph}"'] + ([f"search.population={population}"] if population else [])
+    cfg = override(load_preset(_preset(SPEEDUP_PRESET)), changes)
+    ctx = Breeder(cfg, tmp / f"speed-{graph}").ctx
     f, sr = cfg["fitness"], cfg["search"]
     serial, pool, cluster = SerialExecutor(), PoolExecutor(2), DaskExecutor("local:2")
     serial.start(ctx)
@@ -125,23 +130,32 @@ def speedup(tmp: Path, repeats: int = 3) -> None:
         for r in range(1, repeats + 1):
             work = _generation_tasks(cfg, ctx, r)
             a, expected = _timed(serial, work)
+            k = len(cluster.timings)
             b, got = _timed(cluster, work)
+            busy = sum(x for _, x in cluster.timings[k:])  # the workers' own seconds on these tasks
             c, pooled = _timed(pool, work)
             assert got == expected == pooled, "the executors' measurements differ"
-            rows.append((a, b, c))
+            rows.append((a, b, c, busy))
     finally:
         cluster.close()
         pool.close()
     tasks = cluster.timings[cfg["search"]["population"]:]
-    print(f"\n1. One generation of presets/{SPEEDUP_PRESET}.toml ({cfg['graph']['spec']}, {f['sampler']}, "
+    print(f"\n{label} One generation of presets/{SPEEDUP_PRESET}.toml ({cfg['graph']['spec']}, {f['sampler']}, "
           f"{sr['population']} candidates x {f['reads']} reads, {sr['confirm_top']} confirmed x {f['confirm_reads']} reads)")
     print(f"   starting local:2 took {started:.1f} s; its first generation (one candidate per task, timed) {first:.2f} s")
-    print(f"   {'repeat':>6} {'serial s':>9} {'local:2 s':>10} {'speed-up':>9} {'pool:2 s':>9} {'speed-up':>9}")
-    for r, (a, b, c) in enumerate(rows, 1):
-        print(f"   {r:>6} {a:9.2f} {b:10.2f} {a / b:8.2f}x {c:9.2f} {a / c:8.2f}x")
-    print(f"   median speed-up on 2 workers: local:2 {statistics.median(a / b for a, b, _ in rows):.2f}x, "
-          f"process pool of 2 (no dask, for comparison) {statistics.median(a / c for a, _, c in rows):.2f}x; "
+    print(f"   {'repeat':>6} {'serial s':>9} {'local:2 s':>10} {'speed-up':>9} {'pool:2 s':>9} {'speed-up':>9}"
+          f" {'worker s':>9} {'slower':>7} {'dask s':>7}")
+    for r, (a, b, c, busy) in enumerate(rows, 1):
+        print(f"   {r:>6} {a:9.2f} {b:10.2f} {a / b:8.2f}x {c:9.2f} {a / c:8.2f}x {busy:9.2f} {busy / a:6.2f}x"
+              f" {b - busy / 2:7.2f}")
+    print(f"   median speed-up on 2 workers: local:2 {statistics.median(a / b for a, b, _, _ in rows):.2f}x, "
+          f"process pool of 2 (no dask, for comparison) {statistics.median(a / c for a, _, c, _ in rows):.2f}x; "
           "the three alternate on the same candidates and give the same energies")
+    print("   worker s: the workers' own seconds on the generation's tasks; slower: that over the serial seconds "
+          "(the same work\n   takes longer with both cores busy: shared caches, clock, the host); dask s: "
+          "wall time beyond half the\n   worker seconds (sending, waiting on the slower worker, fetching results)")
+    print(f"   median: both cores busy make the work {statistics.median(busy / a for a, _, _, busy in rows):.2f}x "
+          f"slower; dask adds {statistics.median(b - busy / 2 for _, b, _, busy in rows):.2f} s per generation")
     print(f"   cluster tasks after the timing pass: {len(tasks)}, {min(n for n, _ in tasks)}-"
           f"{max(n for n, _ in tasks)} candidates each, worker seconds per task median "
           f"{statistics.median(x for _, x in tasks):.2f} (min {min(x for _, x in tasks):.2f})")
@@ -287,6 +301,7 @@ def main():
     with tempfile.TemporaryDirectory() as tmp:
         tmp = Path(tmp)
         speedup(tmp)
+        speedup(tmp, repeats=3, graph=CAMPAIGN_GRAPH, population=CAMPAIGN_POPULATION, label="1b.")
         over = overhead(tmp)
         estimate(tmp, over)
     print(f"\nload average {os.getloadavg()[0]:.1f} at the end")
