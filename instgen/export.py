@@ -208,15 +208,17 @@ def _write_dimod(inst: Instance, path: Path) -> list[Path]:
     import dimod
 
     bqm = inst.to_bqm("SPIN")
-    with bqm.to_file() as fh:
-        written = [atomic_write(path, fh.read())]
+    # The optimum goes to disk first: an export stopped between the two files leaves a
+    # spare .ground.json, never a BQM whose promised optimum is missing.
+    ground = []
     opt = optimum_of(inst)
     if opt is not None:
         state, _, status, method = opt
         sample = {lab: int(v) for lab, v in zip(inst.labels, state)}
         ss = dimod.SampleSet.from_samples_bqm(sample, bqm, info={"status": status, "method": method})
-        written.append(atomic_write(_ground_path(path), json.dumps(ss.to_serializable()) + "\n"))
-    return written
+        ground.append(atomic_write(_ground_path(path), json.dumps(ss.to_serializable()) + "\n"))
+    with bqm.to_file() as fh:
+        return [atomic_write(path, fh.read())] + ground
 
 
 def _check_dimod(path: Path) -> ExportCheck:
