@@ -29,18 +29,42 @@ def score_text(s: dict) -> str:
     return text
 
 
-def _table(w, entries, solvers, heads) -> None:
-    """One line per instance: optimum, how it is known, the first metric under every solver."""
-    metric = next((e["scores"][0]["metric"] for e in entries if e["scores"]), "-")
-    w(f"{'#':>2}  {'file':<26} {'optimum':>10}  {'how known':<22}"
-      + "".join(f"  {s + ' ' + metric:<30}" for s in solvers) + "\n")
-    for e, head in zip(entries, heads):
-        c = e["certificate"]
-        line = f"{head} {c['energy']:>10.6g}  {c['method'] + ' (' + c['status'] + ')':<22}"
+def _metric(entries) -> str:
+    return next((e["scores"][0]["metric"] for e in entries if e["scores"]), "-")
+
+
+def _cells(entries, solvers, metric) -> list[list[str]]:
+    """Per instance, the score text under every solver ('-' where there is none)."""
+    rows = []
+    for e in entries:
+        row = []
         for solver in solvers:
             sc = next((s for s in e["scores"] if s["solver"] == solver and s["metric"] == metric), None)
-            line += f"  {score_text(sc) if sc else '-':<30}"
-        w(line + "\n")
+            row.append(score_text(sc) if sc else "-")
+        rows.append(row)
+    return rows
+
+
+def _widths(groups, solvers) -> list[int]:
+    """Column width per solver, wide enough for the header and every cell of every table."""
+    widths = []
+    for k, solver in enumerate(solvers):
+        cells = [row[k] for entries in groups for row in _cells(entries, solvers, _metric(entries))]
+        head = f"{solver} {_metric([e for g in groups for e in g])}"
+        widths.append(max([len(head)] + [len(c) for c in cells]))
+    return widths
+
+
+def _table(w, entries, solvers, heads, widths) -> None:
+    """One line per instance: optimum, how it is known, the first metric under every solver."""
+    metric = _metric(entries)
+    w(f"{'#':>2}  {'file':<26} {'optimum':>10}  {'how known':<22}"
+      + "".join(f"  {s + ' ' + metric:<{wd}}" for s, wd in zip(solvers, widths)).rstrip() + "\n")
+    for e, head, cells in zip(entries, heads, _cells(entries, solvers, metric)):
+        c = e["certificate"]
+        line = f"{head} {c['energy']:>10.6g}  {c['method'] + ' (' + c['status'] + ')':<22}"
+        line += "".join(f"  {text:<{wd}}" for text, wd in zip(cells, widths))
+        w(line.rstrip() + "\n")
 
 
 def print_summary(summary: dict, stream=None) -> None:
@@ -55,19 +79,20 @@ def print_summary(summary: dict, stream=None) -> None:
     w(f"fitness: {run['metric']} on {searched}{least}; figures below re-measured on fresh seeds "
       f"against the certified energy\n\n")
     winners = summary["winners"]
+    base = summary["baseline"]
+    widths = _widths([winners, base["instances"]], run["solvers"])
     if winners:
-        _table(w, winners, run["solvers"], [f"{e['rank']:>2}  {e['file']:<26}" for e in winners])
+        _table(w, winners, run["solvers"], [f"{e['rank']:>2}  {e['file']:<26}" for e in winners], widths)
         planted = [e for e in winners if e.get("planted_energy") is not None]
         if planted:
             w(f"planted energies (the construction's proof, re-checked): "
               + ", ".join(f"#{e['rank']} {e['planted_energy']:.6g}" for e in planted) + "\n")
     else:
         w("no winners were confirmed.\n")
-    base = summary["baseline"]
     if base["instances"]:
         w(f"\nrandom baseline ({base['count']} instances of the same graph and alphabet, same run and settings):\n")
         _table(w, base["instances"], run["solvers"], [f"{'r' + str(k):>2}  {'(not kept)':<26}"
-                                                      for k in range(1, len(base["instances"]) + 1)])
+                                                      for k in range(1, len(base["instances"]) + 1)], widths)
         if base["certified"] < base["count"]:
             w(f"note: {base['count'] - base['certified']} of {base['count']} baseline reference energies are NOT "
               "certified (lowest energy found, not a proof); a lower state would make those instances harder "
