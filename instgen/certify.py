@@ -214,13 +214,17 @@ def _mip(instance, ctx) -> Certificate:
 
 
 def _sa_runner():
-    """The project's `sa` sampler when it is installed, else dwave-samplers directly."""
+    """The compiled `fast-sa` annealer (the same dynamics as `sa`, about ten times faster, so
+    more sweeps fit in the time limit); `sa`, then dwave-samplers directly, if it is missing."""
     from .samplers import Schedule, get_sampler
 
-    try:
-        sampler = get_sampler("sa")
-    except ImportError:
-        sampler = None
+    sampler = None
+    for name in ("fast-sa", "sa"):
+        try:
+            sampler = get_sampler(name)
+            break
+        except ImportError:
+            continue
 
     def run(instance, sweeps, beta_range, reads, seed):
         sched = Schedule(sweeps=sweeps, beta_range=beta_range)
@@ -238,7 +242,7 @@ def _sa_runner():
         states[:, np.asarray(list(ss.variables), dtype=np.int64)] = ss.record.sample
         return states, instance.energies(states)
 
-    return run, ("sa" if sampler is not None else "dwave-samplers simulated annealing")
+    return run, (sampler.name if sampler is not None else "dwave-samplers simulated annealing")
 
 
 def _anneal(instance, ctx, rounds: int | None = None) -> Certificate:

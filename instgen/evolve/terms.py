@@ -31,7 +31,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..errors import ConfigError, InstgenError
-from ..planted.loops import Loop, LoopGraph, fits, random_loop
+from ..planted.loops import Loop, LoopGraph, fit_loop, fits, random_loop
 from ..planted.terms import (SHAPES, Patch, Sites, applicable_shapes, draw_patch, local_pairs, parse_kinds,
                              patch_states, term_couplings, terms_bound)
 from .genome import array_key
@@ -115,6 +115,10 @@ class TermSetting:
             if kind == "loop":
                 w = weight if weight is not None else self.weight(rng)
                 term = random_loop(self.graph, rng, self.min_length, weight=w, start=near)
+                if weight is None:  # a weight left to chance may shrink to fit
+                    term = fit_loop(acc, term, self.cap, self.weights, rng)
+                    if term is None:
+                        continue
             else:
                 spins, edges = site or self.sites[kind].pick(rng, near)
                 term = draw_patch(kind, spins, edges, self.edges, rng, self.weights,

@@ -332,6 +332,40 @@ def fits(accumulated: np.ndarray, loop: Loop, cap: float | None) -> bool:
     return bool(np.all(np.abs(after) <= cap + _TOL))
 
 
+def fit_loop(accumulated: np.ndarray, loop: Loop, cap: float | None, weights, rng) -> Loop | None:
+    """``loop`` if it fits under the cap; else the same cycle re-dressed to fit, or None.
+
+    Near saturation most drawn cycles cross an edge already at the cap.  Rather
+    than drawing a new cycle, this keeps it and draws the frustrated edge
+    uniformly from the positions where some weight in ``weights`` fits (an edge
+    at -cap can still take the frustrated +w), then the weight uniformly from
+    those that fit there: with the frustrated edge at f, every |J| stays within
+    the cap exactly when w <= cap - acc_f and w <= cap + acc_e on the other
+    edges.  The planted state stays a ground state whatever the choice.
+
+    >>> sq = Loop((0, 1, 2, 3), (0, 1, 2, 3), frustrated=0, weight=1.0)
+    >>> out = fit_loop(np.array([0.0, -1.0, 0.0, 0.0]), sq, 1.0, [0.5, 1.0], np.random.default_rng(0))
+    >>> out.frustrated, out.weight   # the edge at -1 can only be the frustrated one
+    (1, 1.0)
+    >>> fit_loop(np.array([-1.0, -1.0, 0.0, 0.0]), sq, 1.0, [0.5], np.random.default_rng(0)) is None
+    True
+    """
+    if cap is None or fits(accumulated, loop, cap):
+        return loop
+    acc = accumulated[list(loop.edges)]
+    ferro, frustrated = cap + acc, cap - acc  # room for -w, and for +w, on each edge
+    order = np.argsort(ferro, kind="stable")
+    others = np.where(np.arange(loop.length) == order[0], ferro[order[1]], ferro[order[0]])
+    bound = np.minimum(frustrated, others)  # largest w with the frustrated edge at each position
+    w = np.asarray(weights, dtype=np.float64).reshape(-1)
+    places = np.flatnonzero(bound >= w.min() - _TOL)
+    if places.size == 0:
+        return None
+    f = int(places[rng.integers(places.size)])
+    ok = w[w <= bound[f] + _TOL]
+    return dataclasses.replace(loop, frustrated=f, weight=float(ok[rng.integers(ok.size)]))
+
+
 def loop_couplings(loops, m: int, cap: float | None = None, gauge=None, edges=None) -> np.ndarray:
     """Couplings J (m,) of a loop set: accumulated in the planted gauge, then gauged.
 
@@ -462,7 +496,9 @@ def plant_loops(graph, density: float = 0.3, seed=None, *, min_length: int = 4, 
     loops = LoopSet(topo.m, cap)
     for _ in range(count):
         for _attempt in range(max_redraws):
-            if loops.add(random_loop(lg, rng, min_length, max_length, weight=float(w[rng.integers(w.size)]))):
+            loop = fit_loop(loops.acc, random_loop(lg, rng, min_length, max_length,
+                                                     weight=float(w[rng.integers(w.size)])), cap, w, rng)
+            if loop is not None and loops.add(loop):
                 break
         else:
             raise InputError(f"only {len(loops)} of {count} loops fit under the cap {cap:g} on {topo.spec}; "

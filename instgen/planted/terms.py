@@ -39,7 +39,7 @@ from ..errors import CertificationError, FormatError, InputError, ResourceError
 from ..couplings import MAX_MAGNITUDE
 from ..seeds import as_generator
 from . import PlantedFamily, construction_of, planted_gauge_couplings
-from .loops import MAX_LOOPS, Loop, LoopGraph, check_loop, fits, random_loop
+from .loops import MAX_LOOPS, Loop, LoopGraph, check_loop, fit_loop, fits, random_loop
 from .sites import SHAPES, Sites, applicable_shapes, check_shapes
 from .tiles import ground_state_ok
 
@@ -230,9 +230,16 @@ def terms_instance(topology, loops, patches, gauge, cap=None, **construction):
                     planted=g, metadata={"kind": "planted", "construction": con})
 
 
+#: plant_terms stops when this many terms in a row found no room under the cap.
+SATURATED = 3
+
+
 def plant_terms(graph, density: float = 0.3, seed=None, *, kinds="loop,ball", cap: float | None = None,
                 weights=(1.0,), min_length: int = 4, patch_size: int = 8, max_redraws: int = 200):
     """A random sum of ``round(density * n)`` terms of the given kinds, under a cap.
+
+    Under a tight cap fewer may fit: planting stops once SATURATED terms in a row
+    found no room, and ``metadata["construction"]`` records the counts placed.
 
     Parameters
     ----------
@@ -284,18 +291,26 @@ def plant_terms(graph, density: float = 0.3, seed=None, *, kinds="loop,ball", ca
     names, p = list(kinds), np.array(list(kinds.values()))
     acc = np.zeros(topo.m)
     loops, patches = [], []
+    missed = 0  # terms in a row that found no room: the cap is saturated, stop trying
     for _ in range(max(1, int(round(density * topo.n)))):
+        if missed >= SATURATED:
+            break
         kind = names[int(rng.choice(len(names), p=p / p.sum()))]
         for _attempt in range(max_redraws):
             if kind == "loop":
-                term = random_loop(lg, rng, min_length, weight=float(w[rng.integers(w.size)]))
+                term = fit_loop(acc, random_loop(lg, rng, min_length, weight=float(w[rng.integers(w.size)])),
+                                cap, w, rng)
+                if term is None:
+                    continue
             else:
                 spins, edges = sites[kind].pick(rng)
                 term = draw_patch(kind, spins, edges, topo.edges, rng, w)
             if fits(acc, term, cap):
                 break
         else:
+            missed += 1
             continue
+        missed = 0
         acc[list(term.edges)] += term.values()
         (loops if kind == "loop" else patches).append(term)
     gauge = random_gauge(topo.n, rng)

@@ -12,8 +12,9 @@ from instgen.errors import CertificationError, InputError
 from instgen.io import dumps_instance, loads_instance
 from instgen.make import topology
 from instgen.planted import plant
-from instgen.planted.loops import (Loop, LoopGraph, loop_couplings, loop_instance, loops_of, planted_bound,
-                                   plant_loops, random_loop, verify)
+from instgen.planted.loops import (Loop, LoopGraph, fit_loop, loop_couplings, loop_instance, loops_of,
+                                   planted_bound, plant_loops, random_loop, verify)
+from instgen.planted.terms import plant_terms
 
 
 def exact_ground(inst):
@@ -152,3 +153,36 @@ def test_loop_set_edits_keep_the_cap_and_the_proof():
             inst = loop_instance(topo, ls.loops, g, cap=2)
             assert np.array_equal(inst.J, ls.couplings(gauge=g, edges=topo.edges))
             assert exact_ground(inst) == pytest.approx(ls.bound)  # dimod's ExactSolver
+
+
+@settings(max_examples=40, deadline=None)
+@given(seed=st.integers(0, 10_000), weights=st.sampled_from([(1.0,), (1 / 3, 2 / 3, 1.0), (0.5, 1.5)]))
+def test_a_refitted_loop_stays_under_the_cap_and_stays_a_frustrated_loop(seed, weights):
+    # Fill chimera:1 close to a cap of 1, then re-dress fresh cycles to fit: every result
+    # must keep |J| <= cap, its cycle, one frustrated edge and a weight from the list,
+    # and the planted state must stay a ground state (dimod's ExactSolver as the reference).
+    rng = np.random.default_rng(seed)
+    g = LoopGraph.of(topology("chimera:1"))
+    acc, placed = np.zeros(g.edges.shape[0]), []
+    for _ in range(40):
+        drawn = random_loop(g, rng, 4, weight=float(rng.choice(weights)))
+        loop = fit_loop(acc, drawn, 1.0, weights, rng)
+        if loop is None:
+            continue
+        assert loop.spins == drawn.spins and loop.edges == drawn.edges and loop.weight in weights
+        acc[list(loop.edges)] += loop.values()
+        assert np.all(np.abs(acc) <= 1.0 + 1e-9)
+        placed.append(loop)
+    inst = loop_instance("chimera:1", placed, np.ones(8, dtype=np.int8), cap=1.0)
+    assert exact_ground(inst) == pytest.approx(planted_bound(placed), abs=1e-9)
+
+
+def test_planting_under_a_saturated_cap_stops_and_records_what_it_placed():
+    # 20 loops per spin cannot fit under |J| <= 1/3 on two Chimera cells (16 spins): planting
+    # stops early instead of redrawing for every remaining term, and says how many it placed;
+    # the planted state is still a ground state (dimod's ExactSolver as the reference).
+    inst = plant_terms("chimera:1,2", density=20, seed=3, kinds="loop", cap=1 / 3, weights=(1 / 3,))
+    con = inst.metadata["construction"]
+    assert inst.n == 16 and 0 < con["loop_count"] < 20 * 16
+    assert np.all(np.abs(inst.J) <= 1 / 3 + 1e-9)
+    assert exact_ground(inst) == pytest.approx(inst.energy(inst.planted), abs=1e-9)
