@@ -216,7 +216,7 @@ class TermGenome:
             t = s.draw(rng, acc)
             if t is None:
                 continue
-            acc[list(t.edges)] += t.values()
+            acc[t.index] += t.values()
             terms.append(t)
         if not terms:
             raise ConfigError("no term fits under the cap on this graph; raise the cap, lower min_length or "
@@ -377,7 +377,7 @@ class MixTerms(Operator):
             chosen = []
             for i in order:
                 if take[i] and fits(acc, pool[i], s.cap):
-                    acc[list(pool[i].edges)] += pool[i].values()
+                    acc[pool[i].index] += pool[i].values()
                     chosen.append(pool[i])
             children.append(parent.with_terms(chosen or list(parent.terms)))
         return tuple(children)

@@ -29,6 +29,7 @@ recovers the loop list of a planted instance.
 from __future__ import annotations
 
 import dataclasses
+import functools
 
 import numpy as np
 
@@ -74,10 +75,22 @@ class Loop:
         return -self.weight * (self.length - 2)
 
     def values(self) -> np.ndarray:
-        """Couplings of ``edges`` in the planted gauge: -w, and +w on the frustrated edge."""
+        """Couplings of ``edges`` in the planted gauge: -w, and +w on the frustrated edge (read-only)."""
+        return self._values
+
+    @functools.cached_property
+    def _values(self) -> np.ndarray:
         v = np.full(self.length, -self.weight)
         v[self.frustrated] = self.weight
+        v.setflags(write=False)
         return v
+
+    @functools.cached_property
+    def index(self) -> np.ndarray:
+        """``edges`` as a read-only int64 array, for indexing coupling arrays."""
+        idx = np.asarray(self.edges, dtype=np.int64)
+        idx.setflags(write=False)
+        return idx
 
     def to_list(self) -> list:
         """``[spins, edges, frustrated, weight]``, JSON-friendly."""
@@ -133,27 +146,27 @@ class LoopSet:
         if without is not None:
             acc = acc.copy()
             old = self.loops[without]
-            acc[list(old.edges)] -= old.values()
+            acc[old.index] -= old.values()
         return fits(acc, loop, self.cap)
 
     def add(self, loop: Loop) -> bool:
         if not self.fits(loop):
             return False
-        self.acc[list(loop.edges)] += loop.values()
+        self.acc[loop.index] += loop.values()
         self.loops.append(loop)
         return True
 
     def remove(self, k: int) -> Loop:
         loop = self.loops.pop(k)
-        self.acc[list(loop.edges)] -= loop.values()
+        self.acc[loop.index] -= loop.values()
         return loop
 
     def replace(self, k: int, loop: Loop) -> bool:
         if not self.fits(loop, without=k):
             return False
         old = self.loops[k]
-        self.acc[list(old.edges)] -= old.values()
-        self.acc[list(loop.edges)] += loop.values()
+        self.acc[old.index] -= old.values()
+        self.acc[loop.index] += loop.values()
         self.loops[k] = loop
         return True
 
@@ -317,7 +330,7 @@ def accumulate(loops, m: int) -> np.ndarray:
     """The summed planted-gauge couplings of ``loops`` on ``m`` edges (no cap, no gauge)."""
     if not loops:
         return np.zeros(m)
-    idx = np.concatenate([np.asarray(loop.edges, dtype=np.int64) for loop in loops])
+    idx = np.concatenate([loop.index for loop in loops])
     val = np.concatenate([loop.values() for loop in loops])
     if idx.size and (idx.min() < 0 or idx.max() >= m):
         raise InputError(f"a loop refers to an edge outside 0..{m - 1}")
@@ -328,7 +341,7 @@ def fits(accumulated: np.ndarray, loop: Loop, cap: float | None) -> bool:
     """True when adding ``loop`` to ``accumulated`` keeps every |J| <= cap."""
     if cap is None:
         return True
-    after = accumulated[list(loop.edges)] + loop.values()
+    after = accumulated[loop.index] + loop.values()
     return bool(np.all(np.abs(after) <= cap + _TOL))
 
 
@@ -352,7 +365,7 @@ def fit_loop(accumulated: np.ndarray, loop: Loop, cap: float | None, weights, rn
     """
     if cap is None or fits(accumulated, loop, cap):
         return loop
-    acc = accumulated[list(loop.edges)]
+    acc = accumulated[loop.index]
     ferro, frustrated = cap + acc, cap - acc  # room for -w, and for +w, on each edge
     order = np.argsort(ferro, kind="stable")
     others = np.where(np.arange(loop.length) == order[0], ferro[order[1]], ferro[order[0]])

@@ -78,8 +78,21 @@ class Patch:
         return float(sum(self.vals))
 
     def values(self) -> np.ndarray:
-        """Couplings of ``edges`` in the planted gauge."""
-        return np.asarray(self.vals, dtype=np.float64)
+        """Couplings of ``edges`` in the planted gauge (read-only)."""
+        return self._values
+
+    @functools.cached_property
+    def _values(self) -> np.ndarray:
+        v = np.asarray(self.vals, dtype=np.float64)
+        v.setflags(write=False)
+        return v
+
+    @functools.cached_property
+    def index(self) -> np.ndarray:
+        """``edges`` as a read-only int64 array, for indexing coupling arrays."""
+        idx = np.asarray(self.edges, dtype=np.int64)
+        idx.setflags(write=False)
+        return idx
 
     def to_list(self) -> list:
         """``[shape, spins, edges, values]``, JSON-friendly."""
@@ -168,7 +181,7 @@ def term_couplings(terms, m: int) -> np.ndarray:
     """Summed planted-gauge couplings of loops and patches on ``m`` edges."""
     if not terms:
         return np.zeros(m)
-    idx = np.concatenate([np.asarray(t.edges, dtype=np.int64) for t in terms])
+    idx = np.concatenate([t.index for t in terms])
     val = np.concatenate([t.values() for t in terms])
     if idx.size and (idx.min() < 0 or idx.max() >= m):
         raise InputError(f"a term refers to an edge outside 0..{m - 1}")
@@ -311,7 +324,7 @@ def plant_terms(graph, density: float = 0.3, seed=None, *, kinds="loop,ball", ca
             missed += 1
             continue
         missed = 0
-        acc[list(term.edges)] += term.values()
+        acc[term.index] += term.values()
         (loops if kind == "loop" else patches).append(term)
     gauge = random_gauge(topo.n, rng)
     return terms_instance(topo, loops, patches, gauge, cap=cap, density=float(density), kinds=kinds,
