@@ -31,6 +31,7 @@ from __future__ import annotations
 import dataclasses
 import functools
 
+import numba as nb
 import numpy as np
 
 from ..errors import CertificationError, FormatError, InputError, ResourceError
@@ -138,16 +139,22 @@ class LoopSet:
         """The planted energy, -sum w (L - 2)."""
         return planted_bound(self.loops)
 
-    def fits(self, loop: Loop, without: int | None = None) -> bool:
-        """Would the cap hold with ``loop`` added (and loop number ``without`` taken out)?"""
+    def fits(self, loop: Loop | None, without: int | None = None) -> bool:
+        """Would the cap hold with ``loop`` added (and loop number ``without`` taken out)?
+
+        Taking a loop out can break the cap too: its couplings may have offset
+        another loop's on a shared edge, so the old loop's edges are checked as well.
+        """
         if self.cap is None:
             return True
-        acc = self.acc
-        if without is not None:
-            acc = acc.copy()
-            old = self.loops[without]
-            acc[old.index] -= old.values()
-        return fits(acc, loop, self.cap)
+        if without is None:
+            return fits(self.acc, loop, self.cap)
+        acc = self.acc.copy()
+        old = self.loops[without]
+        acc[old.index] -= old.values()
+        if np.any(np.abs(acc[old.index]) > self.cap + _TOL):
+            return False
+        return loop is None or fits(acc, loop, self.cap)
 
     def add(self, loop: Loop) -> bool:
         if not self.fits(loop):
@@ -156,7 +163,10 @@ class LoopSet:
         self.loops.append(loop)
         return True
 
-    def remove(self, k: int) -> Loop:
+    def remove(self, k: int) -> Loop | None:
+        """Take loop ``k`` out and return it; None (and no change) if that would break the cap."""
+        if not self.fits(None, without=k):
+            return None
         loop = self.loops.pop(k)
         self.acc[loop.index] -= loop.values()
         return loop
@@ -200,6 +210,11 @@ class LoopGraph:
     @property
     def m(self) -> int:
         return int(self.edges.shape[0])
+
+    @functools.cached_property
+    def starts(self) -> np.ndarray:
+        """Spins with at least two neighbours (where a walk can start)."""
+        return np.flatnonzero(np.diff(self.indptr) >= 2).astype(np.int64)
 
     @classmethod
     def of(cls, graph) -> LoopGraph:
@@ -270,51 +285,83 @@ def random_loop(graph, rng=None, min_length: int = 4, max_length: int | None = N
         raise InputError(f"max_length {max_length} is below min_length {min_length}")
     if not (np.isfinite(weight) and weight > 0):
         raise InputError(f"a loop weight must be a positive number, got {weight}")
-    deg = np.diff(g.indptr)
     if start is None:
-        starts = np.flatnonzero(deg >= 2)
+        starts = g.starts
         if starts.size == 0:
             raise InputError("the graph has no cycles (every spin has fewer than two neighbours)")
+    else:
+        starts = np.array([int(start)], dtype=np.int64)
     budget = max_steps if max_steps is not None else 50 * g.n + 1000
-    indptr, nbr, eid, rev = g.indptr, g.neighbours, g.edge_ids, g.reverse
-    draws = rng.random(min(budget, 256) + 1)
-    used = 0
+    spins, slots = _walk(g.indptr, g.neighbours, g.reverse, starts, int(min_length),
+                         -1 if max_length is None else int(max_length), int(budget),
+                         int(rng.integers(1, 2 ** 63)))
+    if spins.size == 0:
+        raise InputError(f"no cycle of length {min_length}..{max_length or 'any'} found in {budget} steps of a "
+                         "random walk; the graph may have none that long")
+    return Loop(spins.tolist(), g.edge_ids[slots].tolist(), int(rng.integers(spins.size)), weight)
+
+
+@nb.njit(cache=True)
+def _walk(indptr, nbr, rev, starts, min_length, max_length, budget, seed):
+    """The loop-erased, non-backtracking walk of :func:`random_loop`, compiled.
+
+    Returns the cycle's spins and the CSR slots of its edges (the edge from
+    spins[k] to spins[k + 1], the last one closing the cycle), or two empty
+    arrays when ``budget`` steps found none.  Random numbers: a 64-bit
+    xorshift-multiply generator seeded from ``seed``.
+    """
+    n = indptr.shape[0] - 1
+    pos = np.full(n, -1, np.int64)
+    path = np.empty(n + 1, np.int64)
+    slots = np.empty(n + 1, np.int64)
+    x = np.uint64(seed) | np.uint64(1)
     steps = 0
     while steps < budget:
-        v0 = int(start) if start is not None else int(starts[rng.integers(starts.size)])
-        path, slots, pos = [v0], [], {v0: 0}
+        x ^= x >> np.uint64(12)
+        x ^= x << np.uint64(25)
+        x ^= x >> np.uint64(27)
+        v0 = starts[np.int64((x * np.uint64(0x2545F4914F6CDD1D)) >> np.uint64(11)) % starts.shape[0]]
+        size = 1
+        path[0] = v0
+        pos[v0] = 0
         while steps < budget:
             steps += 1
-            if used == draws.size:
-                draws, used = rng.random(draws.size), 0
-            r = draws[used]
-            used += 1
-            v = path[-1]
-            lo, hi = int(indptr[v]), int(indptr[v + 1])
-            back = int(rev[slots[-1]]) if slots else -1
-            choices = hi - lo - (back >= 0)
+            x ^= x >> np.uint64(12)
+            x ^= x << np.uint64(25)
+            x ^= x >> np.uint64(27)
+            r = np.float64((x * np.uint64(0x2545F4914F6CDD1D)) >> np.uint64(11)) * (2.0 ** -53)
+            v = path[size - 1]
+            lo, hi = indptr[v], indptr[v + 1]
+            back = rev[slots[size - 2]] if size > 1 else -1
+            choices = hi - lo - (1 if back >= 0 else 0)
             if choices <= 0:
                 break  # dead end: start again
-            k = lo + int(r * choices)
+            k = lo + np.int64(r * choices)
             if 0 <= back <= k:
                 k += 1
-            u = int(nbr[k])
-            if u in pos:
-                p = pos[u]
-                size = len(path) - p
-                if size >= min_length and (max_length is None or size <= max_length):
-                    cyc = [int(eid[x]) for x in slots[p:]] + [int(eid[k])]
-                    return Loop(path[p:], cyc, int(rng.integers(size)), weight)
-                for w in path[p + 1:]:
-                    del pos[w]
-                del path[p + 1:]
-                del slots[p:]
+            u = nbr[k]
+            p = pos[u]
+            if p >= 0:
+                length = size - p
+                if length >= min_length and (max_length < 0 or length <= max_length):
+                    out_spins = path[p:size].copy()
+                    out_slots = np.empty(length, np.int64)
+                    out_slots[:length - 1] = slots[p:size - 1]
+                    out_slots[length - 1] = k
+                    for i in range(size):
+                        pos[path[i]] = -1
+                    return out_spins, out_slots
+                for i in range(p + 1, size):
+                    pos[path[i]] = -1
+                size = p + 1
             else:
-                pos[u] = len(path)
-                path.append(u)
-                slots.append(k)
-    raise InputError(f"no cycle of length {min_length}..{max_length or 'any'} found in {budget} steps of a "
-                     "random walk; the graph may have none that long")
+                pos[u] = size
+                path[size] = u
+                slots[size - 1] = k
+                size += 1
+        for i in range(size):
+            pos[path[i]] = -1
+    return np.empty(0, np.int64), np.empty(0, np.int64)
 
 
 def planted_bound(loops) -> float:
