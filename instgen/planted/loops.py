@@ -42,8 +42,32 @@ from . import PlantedFamily, construction_of
 _TOL = 1e-9
 
 
+class TermArrays:
+    """What loops and patches share: their couplings and edge indices as read-only arrays, built once.
+
+    A term defines ``edges`` and ``_couplings()`` (the values on ``edges`` in the planted gauge).
+    """
+
+    def values(self) -> np.ndarray:
+        """Couplings of ``edges`` in the planted gauge (read-only)."""
+        return self._values
+
+    @functools.cached_property
+    def _values(self) -> np.ndarray:
+        v = np.asarray(self._couplings(), dtype=np.float64)
+        v.setflags(write=False)
+        return v
+
+    @functools.cached_property
+    def index(self) -> np.ndarray:
+        """``edges`` as a read-only int64 array, for indexing coupling arrays."""
+        idx = np.asarray(self.edges, dtype=np.int64)
+        idx.setflags(write=False)
+        return idx
+
+
 @dataclasses.dataclass(frozen=True, eq=False)
-class Loop:
+class Loop(TermArrays):
     """One frustrated loop, in the planted gauge.
 
     ``spins[k]`` and ``spins[(k + 1) % L]`` are joined by edge ``edges[k]`` (an
@@ -75,23 +99,11 @@ class Loop:
         """The loop's ground-state energy, -w (L - 2)."""
         return -self.weight * (self.length - 2)
 
-    def values(self) -> np.ndarray:
-        """Couplings of ``edges`` in the planted gauge: -w, and +w on the frustrated edge (read-only)."""
-        return self._values
-
-    @functools.cached_property
-    def _values(self) -> np.ndarray:
+    def _couplings(self) -> np.ndarray:
+        """-w, and +w on the frustrated edge."""
         v = np.full(self.length, -self.weight)
         v[self.frustrated] = self.weight
-        v.setflags(write=False)
         return v
-
-    @functools.cached_property
-    def index(self) -> np.ndarray:
-        """``edges`` as a read-only int64 array, for indexing coupling arrays."""
-        idx = np.asarray(self.edges, dtype=np.int64)
-        idx.setflags(write=False)
-        return idx
 
     def to_list(self) -> list:
         """``[spins, edges, frustrated, weight]``, JSON-friendly."""

@@ -39,7 +39,7 @@ from ..errors import CertificationError, FormatError, InputError, ResourceError
 from ..couplings import MAX_MAGNITUDE
 from ..seeds import as_generator
 from . import PlantedFamily, construction_of, planted_gauge_couplings
-from .loops import MAX_LOOPS, Loop, LoopGraph, check_loop, fit_loop, fits, random_loop
+from .loops import MAX_LOOPS, Loop, LoopGraph, TermArrays, check_loop, fit_loop, fits, random_loop
 from .sites import SHAPES, Sites, applicable_shapes, check_shapes
 from .tiles import ground_state_ok
 
@@ -50,7 +50,7 @@ _TOL = 1e-9
 
 
 @dataclasses.dataclass(frozen=True, eq=False)
-class Patch:
+class Patch(TermArrays):
     """A small frustrated term in the planted gauge.
 
     ``edges`` are edge indices of the graph, ``values`` their couplings with
@@ -77,22 +77,8 @@ class Patch:
         """The patch's ground-state energy: its energy at all +1."""
         return float(sum(self.vals))
 
-    def values(self) -> np.ndarray:
-        """Couplings of ``edges`` in the planted gauge (read-only)."""
-        return self._values
-
-    @functools.cached_property
-    def _values(self) -> np.ndarray:
-        v = np.asarray(self.vals, dtype=np.float64)
-        v.setflags(write=False)
-        return v
-
-    @functools.cached_property
-    def index(self) -> np.ndarray:
-        """``edges`` as a read-only int64 array, for indexing coupling arrays."""
-        idx = np.asarray(self.edges, dtype=np.int64)
-        idx.setflags(write=False)
-        return idx
+    def _couplings(self):
+        return self.vals
 
     def to_list(self) -> list:
         """``[shape, spins, edges, values]``, JSON-friendly."""
