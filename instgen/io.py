@@ -43,6 +43,19 @@ FORMAT_VERSION = 1
 MIGRATIONS: dict[int, callable] = {}
 
 
+def encodable(text: str) -> bool:
+    """True when ``text`` can be written as UTF-8 (no lone surrogates from undecodable bytes).
+
+    >>> encodable("chimera:4"), encodable("bad" + chr(0xDCFF))
+    (True, False)
+    """
+    try:
+        text.encode("utf-8")
+        return True
+    except UnicodeEncodeError:
+        return False
+
+
 def atomic_write(path, data: str | bytes) -> Path:
     """Write ``data`` to ``path`` through a temporary file and a rename.
 

@@ -18,6 +18,7 @@ import tomllib
 from pathlib import Path
 
 from .errors import ConfigError, InstgenError
+from .io import encodable
 
 FORMAT_VERSION = 1
 
@@ -164,7 +165,7 @@ def _check_value(table, key, value):
         words = {int: "whole number", float: "number", str: "string", list: "list", dict: "table"}
         names = words[types] if isinstance(types, type) else "number"
         raise ConfigError(f"{where} must be a {names}, got {value!r}")
-    if isinstance(value, str) and not value.isprintable() and not _encodable(value):
+    if isinstance(value, str) and not value.isprintable() and not encodable(value):
         raise ConfigError(f"{where} is not valid text (it holds a lone surrogate), got {value!r}")
     if isinstance(value, float) and (math.isnan(value) or (math.isinf(value) and key != "target")):
         raise ConfigError(f"{where} must be a finite number, got {value!r}")
@@ -173,14 +174,6 @@ def _check_value(table, key, value):
         if problem:
             raise ConfigError(f"{where} {problem}, got {value!r}")
     return value
-
-
-def _encodable(text: str) -> bool:
-    try:
-        text.encode("utf-8")
-        return True
-    except UnicodeEncodeError:
-        return False
 
 
 def _check_names(cfg):

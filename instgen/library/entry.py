@@ -16,7 +16,7 @@ import numpy as np
 
 from ..errors import FormatError, InputError, LibraryError
 from ..instance import Instance
-from ..io import loads_instance
+from ..io import encodable, loads_instance
 from ..records import Certificate, Score
 from .fingerprint import fingerprint
 
@@ -138,21 +138,13 @@ def known(score: Score | None) -> bool:
     return score is not None and not np.isnan(score.value)
 
 
-def _encodable(text: str) -> bool:
-    try:
-        text.encode("utf-8")
-        return True
-    except UnicodeEncodeError:
-        return False
-
-
 def clean_tags(tags) -> list[str]:
     """Tags as a sorted list of distinct non-empty strings."""
     out = set()
     for t in tags:
         if not isinstance(t, str) or not t.strip():
             raise InputError(f"a tag must be a non-empty string, got {t!r}")
-        if not t.isascii() and not _encodable(t):  # e.g. bytes that were not UTF-8 on the command line
+        if not t.isascii() and not encodable(t):  # e.g. bytes that were not UTF-8 on the command line
             raise InputError(f"a tag must be valid text, got {t!r}")
         out.add(t.strip())
     return sorted(out)

@@ -33,10 +33,10 @@ from pathlib import Path
 from .. import __version__
 from ..errors import InputError, LibraryError
 from ..instance import Instance
-from ..io import atomic_write, dumps_instance
+from ..io import atomic_write, dumps_instance, encodable
 from ..records import Certificate, Score
 from . import schema
-from .entry import (CERTIFIED, SHORT_ID, Entry, _encodable, certificate_of, clean_tags, decode_state,
+from .entry import (CERTIFIED, SHORT_ID, Entry, certificate_of, clean_tags, decode_state,
                     encode_state, energy_tolerance, json_safe, known, score_from_record, score_key,
                     scores_of)
 from .fingerprint import FINGERPRINT_VERSION, canonical_form, carry_state
@@ -359,7 +359,7 @@ class Library:
             raise InputError("a metric threshold or sorting by value needs a metric name")
         where, params = ["1"], []
         if graph:
-            if not graph.isascii() and not _encodable(graph):
+            if not graph.isascii() and not encodable(graph):
                 raise InputError(f"the graph filter must be valid text, got {graph!r}")
             if ":" in graph:
                 where.append("graph = ?")

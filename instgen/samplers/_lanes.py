@@ -52,15 +52,19 @@ _LOW32 = _U(0xFFFFFFFF)
 X_MAX = 40.0
 
 
-@intrinsic
-def _bits_to_float(typingctx, x):
-    """Reinterpret the 64 bits of a uint64 as a float64 (no conversion)."""
-    sig = types.float64(types.uint64)
+def _reinterpret(source, target, llvm_type, doc):
+    """A compiled function that reads a ``source`` value's bits as a ``target`` (no conversion)."""
+    def cast(typingctx, x):
+        def codegen(context, builder, signature, args):
+            return builder.bitcast(args[0], llvm_type)
 
-    def codegen(context, builder, signature, args):
-        return builder.bitcast(args[0], ir.DoubleType())
+        return target(source), codegen
 
-    return sig, codegen
+    cast.__doc__ = doc
+    return intrinsic(cast)
+
+
+_bits_to_float = _reinterpret(types.uint64, types.float64, ir.DoubleType(), "uint64 bits as a float64")
 
 
 @nb.njit(inline="always", cache=True)
@@ -123,26 +127,8 @@ _LOW32_64 = _U(0xFFFFFFFF)
 _R1, _R7, _R9, _R11, _R23, _R31 = _U32(1), _U32(7), _U32(9), _U32(11), _U32(23), _U32(31)
 
 
-@intrinsic
-def _bits_to_float32(typingctx, x):
-    """Reinterpret the 32 bits of a uint32 as a float32."""
-    sig = types.float32(types.uint32)
-
-    def codegen(context, builder, signature, args):
-        return builder.bitcast(args[0], ir.FloatType())
-
-    return sig, codegen
-
-
-@intrinsic
-def _float32_to_bits(typingctx, x):
-    """Reinterpret the 32 bits of a float32 as a uint32."""
-    sig = types.uint32(types.float32)
-
-    def codegen(context, builder, signature, args):
-        return builder.bitcast(args[0], ir.IntType(32))
-
-    return sig, codegen
+_bits_to_float32 = _reinterpret(types.uint32, types.float32, ir.FloatType(), "uint32 bits as a float32")
+_float32_to_bits = _reinterpret(types.float32, types.uint32, ir.IntType(32), "float32 bits as a uint32")
 
 
 @nb.njit(inline="always", fastmath={"contract"}, cache=True)
