@@ -154,6 +154,21 @@ def _rotl32(x, k):
     return _U32((x << k) | (x >> (_U32(32) - k)))
 
 
+@nb.njit(inline="always", cache=True)
+def _xoshiro_step(q0, q1, q2, q3, r):
+    """Advance lane r's xoshiro128++ generator (state words q0..q3[r]); returns 32 random bits."""
+    x0, x1, x2, x3 = q0[r], q1[r], q2[r], q3[r]
+    x = _U32(_rotl32(_U32(x0 + x3), _R7) + x0)
+    t = _U32(x1 << _R9)
+    x2 ^= x0
+    x3 ^= x1
+    x1 ^= x2
+    x0 ^= x3
+    x2 ^= t
+    q0[r], q1[r], q2[r], q3[r] = x0, x1, x2, _rotl32(x3, _R11)
+    return x
+
+
 def _vectorised(signature, width, **flags):
     """``numba.njit(signature, **flags)``, compiled now with LLVM's vectoriser forced to ``width`` lanes.
 
@@ -218,15 +233,7 @@ def anneal_lanes(indptr, indices, weights, fields, betas, reads, seeds, out):
             _seed_lanes(seeds[c], blk * LANES, q0, q1, q2, q3)
             for i in range(n):
                 for r in range(LANES):
-                    x0, x1, x2, x3 = q0[r], q1[r], q2[r], q3[r]
-                    x = _U32(_rotl32(_U32(x0 + x3), _R7) + x0)
-                    t = _U32(x1 << _R9)
-                    x2 ^= x0
-                    x3 ^= x1
-                    x1 ^= x2
-                    x0 ^= x3
-                    x2 ^= t
-                    q0[r], q1[r], q2[r], q3[r] = x0, x1, x2, _rotl32(x3, _R11)
+                    x = _xoshiro_step(q0, q1, q2, q3, r)
                     s[i, r] = _ONE32 if (x >> _R31) else _MONE32
             for sweep in range(betas.shape[0]):
                 if sweep % REFRESH == 0:
@@ -241,15 +248,7 @@ def anneal_lanes(indptr, indices, weights, fields, betas, reads, seeds, out):
                 m2b = _F(-2.0 * betas[sweep])
                 for i in range(n):
                     for r in range(LANES):
-                        x0, x1, x2, x3 = q0[r], q1[r], q2[r], q3[r]
-                        x = _U32(_rotl32(_U32(x0 + x3), _R7) + x0)
-                        t = _U32(x1 << _R9)
-                        x2 ^= x0
-                        x3 ^= x1
-                        x1 ^= x2
-                        x0 ^= x3
-                        x2 ^= t
-                        q0[r], q1[r], q2[r], q3[r] = x0, x1, x2, _rotl32(x3, _R11)
+                        x = _xoshiro_step(q0, q1, q2, q3, r)
                         si = s[i, r]
                         # y = beta * dE with dE = -2 s_i f_i, clamped to [0, X_MAX_LANES]
                         y = min(max(m2b * si * f[i, r], _ZERO32), _X_MAX32)
