@@ -23,20 +23,23 @@ Each measurement keeps the raw final energies per sweep count, so repeated
 measurements of the same candidate pool by concatenation and the value is
 recomputed from everything seen (see :func:`pool`).
 
-Named metric values (what the number means):
+Named metrics are computed by :func:`instgen.scoring.evaluate`, the same code
+that gives ``instgen score``, the run summary, the library and the report
+their figures, so the same energies give the same figure everywhere.  The
+fitness is that figure's ranking key (:func:`instgen.scoring.rank_key`):
 
-``tts``       log10 of time-to-solution TTS99 in sweeps at the best sweep count
-              of the grid among those where the ground state was reached (a
-              sweep count with no success gives only a bound and is left out
-              of the minimum, so a hard candidate is not capped by its shortest
-              anneal); a candidate whose ground state was never reached is
-              scored as if one read had succeeded at the largest sweep count
-              (a lower bound, flagged), which ranks it above every candidate
-              that was solved.
-``gap``       (mean E after ``short_sweeps`` - mean E after ``long_sweeps``) / (n * scale):
-              how much an instance still improves late in an anneal.
+``tts``       log10 of TTS99 in sweeps at the best sweep count of the search
+              grid; a never-solved candidate (a lower bound) ranks as if one
+              read more than one measurement's reads had succeeded at the
+              longest anneal, ties broken by residual energy, so its rank does
+              not grow with pooled reads.
+``gap``       (mean E after ``short_sweeps`` - mean E after ``long_sweeps``) / (n * scale).
 ``residual``  (mean E after ``long_sweeps`` - reference) / (n * scale).
 ``success``   1 - success probability after ``long_sweeps``.
+
+The search grid is short and fixed, so a candidate's search figure may be a
+bound; figures that leave the search are measured again and pinned at the
+optimal sweep count (:class:`instgen.scoring.Pinning`).
 """
 
 from __future__ import annotations
@@ -48,16 +51,12 @@ from typing import Any
 
 import numpy as np
 
+from . import scoring
 from .errors import ConfigError, InputError
 from .instance import Instance
-from .metrics import tts
 from .samplers import SAMPLERS, Schedule, get_sampler
+from .scoring import FITNESS_METRICS, METRICS
 from .seeds import derive_seed
-
-#: Energies within this of the reference count as reaching it.
-ENERGY_TOLERANCE = 1e-6
-
-METRIC_NAMES = ("tts", "gap", "residual", "success")
 
 
 @dataclasses.dataclass
@@ -107,18 +106,19 @@ class Context:
     def schedule(self, sweeps: int) -> Schedule:
         return Schedule(sweeps=int(sweeps), beta_range=self.beta_range, interpolation=self.interpolation)
 
+    def metric_names(self) -> list[str]:
+        """The named metrics the fitness is made of."""
+        return list(self.weights) if self.metric == "composite" else [self.metric]
+
+    def counts_of(self, name: str) -> tuple[int, ...]:
+        """The sweep counts one named metric is measured at in this run."""
+        return METRICS.get(name).counts_for(self.sweeps, self.short_sweeps, self.long_sweeps)
+
     def sweep_counts(self) -> tuple[int, ...]:
-        """The sweep counts the metric needs."""
-        names = self.weights if self.metric == "composite" else {self.metric: 1}
-        need = set()
-        for name in names:
-            if name == "tts":
-                need |= set(self.sweeps)
-            elif name == "gap":
-                need |= {self.short_sweeps, self.long_sweeps}
-            elif name in ("residual", "success"):
-                need.add(self.long_sweeps)
-        return tuple(sorted(need))
+        """The sweep counts the fitness needs."""
+        if self.user is not None:
+            return ()
+        return tuple(sorted({c for name in self.metric_names() for c in self.counts_of(name)}))
 
     def instance(self, J, h, planted=None) -> Instance:
         return Instance(edges=self.edges, J=J, h=h, n=self.n, labels=self.labels, graph=self.graph,
@@ -127,27 +127,36 @@ class Context:
 
 @dataclasses.dataclass
 class Measurement:
-    """Raw results of measuring one candidate once (or pooled over several)."""
+    """Raw results of measuring one candidate once (or pooled over several).
+
+    ``reads`` is the reads of one measurement (a never-solved figure is
+    bounded from that many, however many are pooled); ``tol`` the energy
+    tolerance for reaching the reference (:func:`instgen.scoring.energy_tolerance`).
+    """
 
     energies: dict[int, np.ndarray] = dataclasses.field(default_factory=dict)
     values: list[float] = dataclasses.field(default_factory=list)
     seconds: float = 0.0
     spin_updates: int = 0
     by_solver: dict[str, dict[int, np.ndarray]] = dataclasses.field(default_factory=dict)  # further solvers
+    reads: int = 0
+    tol: float = 1e-9
 
     def to_dict(self) -> dict:
         d = {"energies": {str(k): v.tolist() for k, v in self.energies.items()}, "values": list(self.values),
-             "seconds": self.seconds, "spin_updates": self.spin_updates}
+             "seconds": self.seconds, "spin_updates": self.spin_updates, "reads": self.reads, "tol": self.tol}
         if self.by_solver:
             d["by_solver"] = {s: {str(k): v.tolist() for k, v in e.items()} for s, e in self.by_solver.items()}
         return d
 
     @classmethod
     def from_dict(cls, d: dict) -> Measurement:
-        return cls({int(k): np.asarray(v, dtype=np.float64) for k, v in d["energies"].items()},
-                   [float(x) for x in d["values"]], float(d["seconds"]), int(d["spin_updates"]),
+        energies = {int(k): np.asarray(v, dtype=np.float64) for k, v in d["energies"].items()}
+        return cls(energies, [float(x) for x in d["values"]], float(d["seconds"]), int(d["spin_updates"]),
                    {s: {int(k): np.asarray(v, dtype=np.float64) for k, v in e.items()}
-                    for s, e in d.get("by_solver", {}).items()})
+                    for s, e in d.get("by_solver", {}).items()},
+                   int(d.get("reads", min((v.size for v in energies.values()), default=0))),
+                   float(d.get("tol", 1e-9)))
 
     @property
     def min_energy(self) -> float:
@@ -158,7 +167,8 @@ class Measurement:
 def pool(measurements) -> Measurement:
     """Concatenate measurements of the same candidate."""
     out = Measurement()
-    for m in measurements:
+    ms = list(measurements)
+    for m in ms:
         for k, e in m.energies.items():
             out.energies[k] = np.concatenate([out.energies[k], e]) if k in out.energies else e
         for name, energies in m.by_solver.items():
@@ -168,6 +178,8 @@ def pool(measurements) -> Measurement:
         out.values.extend(m.values)
         out.seconds += m.seconds
         out.spin_updates += m.spin_updates
+    out.reads = min((m.reads for m in ms if m.reads), default=0)
+    out.tol = max((m.tol for m in ms), default=1e-9)
     return out
 
 
@@ -189,7 +201,7 @@ def measure(ctx: Context, J, h, seed: int, reads: int, planted=None) -> Measurem
             raise InputError(f"the fitness function returned {value}, not a finite number")
         return Measurement(values=[value])
     sampler = get_sampler(ctx.sampler)
-    out = Measurement()
+    out = Measurement(reads=int(reads), tol=scoring.energy_tolerance(inst))
     copies = max(1, ctx.noise_copies) if ctx.noise_sigma > 0 else 1
     for sweeps in ctx.sweep_counts():
         parts = []
@@ -238,42 +250,26 @@ class UserContext:
 
 
 # ---------------------------------------------------------------------- values
-def tts_from_energies(energies: dict[int, np.ndarray], reference: float) -> dict:
-    """Optimal-sweeps TTS99 over the grid, with the zero-success rule of the module docstring."""
-    rows = []
-    for sweeps in sorted(energies):
-        e = energies[sweeps]
-        hits = int(np.sum(e <= reference + ENERGY_TOLERANCE))
-        reads = int(e.size)
-        p = hits / reads if reads else 0.0
-        bounded = hits == 0
-        p_used = (1.0 / (reads + 1)) if bounded else p
-        rows.append({"sweeps": sweeps, "hits": hits, "reads": reads, "p": p, "tts": tts(p_used, sweeps),
-                     "bound": bounded})
-    solved = [r for r in rows if not r["bound"]]
-    best = min(solved, key=lambda r: r["tts"]) if solved else rows[-1]
-    return {"tts": best["tts"], "sweeps": best["sweeps"], "bound": best["bound"],
-            "at_edge": len(rows) > 1 and best["sweeps"] in (rows[0]["sweeps"], rows[-1]["sweeps"]), "grid": rows}
+def figure(name: str, ctx: Context, m: Measurement, reference: float, energies=None, intervals: bool = False):
+    """The figure (a :class:`~instgen.records.Score`) of one named metric for a measurement.
+
+    Computed by :func:`instgen.scoring.evaluate`, the one implementation.
+    """
+    energies = m.energies if energies is None else energies
+    mine = {c: energies[c] for c in ctx.counts_of(name)}
+    return scoring.evaluate(name, mine, reference=reference, n=ctx.n, scale=ctx.scale, tol=m.tol,
+                            bound_reads=m.reads or None, intervals=intervals)
 
 
-def metric_value(name: str, ctx: Context, m: Measurement, reference: float) -> tuple[float, dict]:
-    """Fitness value (higher = harder) of one named metric, with details."""
-    norm = max(ctx.n * ctx.scale, 1e-300)
+def metric_value(name: str, ctx: Context, m: Measurement, reference: float, energies=None) -> tuple[float, dict]:
+    """Fitness value (higher = harder) of one named metric, with the figure it ranks."""
+    energies = m.energies if energies is None else energies
+    score = figure(name, ctx, m, reference, energies)
+    key = scoring.rank_key(score, energies, reference=reference, n=ctx.n, scale=ctx.scale)
+    details = {"metric": name, "figure": float(score.value), "kind": score.kind, "units": score.units}
     if name == "tts":
-        d = tts_from_energies({k: m.energies[k] for k in ctx.sweeps}, reference)
-        return math.log10(d["tts"]), d
-    if name == "gap":
-        short, long = m.energies[ctx.short_sweeps], m.energies[ctx.long_sweeps]
-        gap = (float(short.mean()) - float(long.mean())) / norm
-        return gap, {"gap": gap, "short_mean": float(short.mean()), "long_mean": float(long.mean())}
-    e = m.energies[ctx.long_sweeps]
-    if name == "residual":
-        r = (float(e.mean()) - reference) / norm
-        return r, {"residual": r}
-    if name == "success":
-        p = float(np.mean(e <= reference + ENERGY_TOLERANCE))
-        return 1.0 - p, {"p": p}
-    raise InputError(f"unknown metric {name!r}")
+        details["sweeps"] = score.extra["best_sweeps"]
+    return key, details
 
 
 def value(ctx: Context, m: Measurement, reference: float | None) -> tuple[float, dict]:
@@ -294,21 +290,21 @@ def _least_over_solvers(ctx: Context, m: Measurement, ref: float) -> tuple[float
     """The fitness under the solver that finds the candidate easiest (hardness is no one method's blind spot)."""
     per = {ctx.sampler: _value_of(ctx, m, ref)}
     for name in ctx.solvers:
-        per[name] = _value_of(ctx, Measurement(energies=m.by_solver.get(name, {})), ref)
+        per[name] = _value_of(ctx, m, ref, m.by_solver.get(name, {}))
     easiest = min(per, key=lambda k: (per[k][0], k))
     v, d = per[easiest]
     return v, {**d, "solver": easiest, "per_solver": {k: x[0] for k, x in per.items()}}
 
 
-def _value_of(ctx: Context, m: Measurement, ref: float) -> tuple[float, dict]:
+def _value_of(ctx: Context, m: Measurement, ref: float, energies=None) -> tuple[float, dict]:
     if ctx.metric == "composite":
         total, details = 0.0, {}
         for name, w in ctx.weights.items():
-            v, d = metric_value(name, ctx, m, ref)
+            v, d = metric_value(name, ctx, m, ref, energies)
             total += w * v
             details[name] = {"value": v, **d}
         return total, {"reference": ref, "parts": details}
-    v, d = metric_value(ctx.metric, ctx, m, ref)
+    v, d = metric_value(ctx.metric, ctx, m, ref, energies)
     return v, {"reference": ref, **d}
 
 
@@ -316,6 +312,8 @@ def display(ctx: Context, v: float) -> str:
     """A fitness value as a reader would say it."""
     if ctx.metric == "tts":
         return f"TTS99 {10 ** v:.3g} sweeps"
+    if ctx.metric == "success":
+        return f"success {1 - v:.4g}"
     return f"{ctx.metric} {v:.4g}"
 
 
@@ -344,16 +342,16 @@ def check_fitness(f: dict) -> None:
         if not w or not isinstance(w, dict):
             raise ConfigError("[fitness] metric 'composite' needs weights, e.g. weights = { tts = 1.0, gap = 0.5 }")
         for name, weight in w.items():
-            if name not in METRIC_NAMES:
-                raise ConfigError(f"[fitness] weights: unknown metric {name!r}; choose from: {', '.join(METRIC_NAMES)}")
+            if name not in FITNESS_METRICS:
+                raise ConfigError(f"[fitness] weights: unknown metric {name!r}; choose from: {', '.join(FITNESS_METRICS)}")
             if isinstance(weight, bool) or not isinstance(weight, (int, float)) or not math.isfinite(weight):
                 raise ConfigError(f"[fitness] weights.{name} must be a finite number")
     elif ":" in metric:
         module, _, attr = metric.partition(":")
         if not module or not attr or not all(p.isidentifier() for p in module.split(".") + [attr]):
             raise ConfigError(f"[fitness] metric {metric!r} is not of the form package.module:function")
-    elif metric not in METRIC_NAMES:
-        raise ConfigError(f"[fitness] unknown metric {metric!r}; choose one of: {', '.join(METRIC_NAMES)}, "
+    elif metric not in FITNESS_METRICS:
+        raise ConfigError(f"[fitness] unknown metric {metric!r}; choose one of: {', '.join(FITNESS_METRICS)}, "
                           "composite, or package.module:function")
     if f["sampler"] not in SAMPLERS:
         raise ConfigError(f"[fitness] unknown sampler {f['sampler']!r}; choose one of: {', '.join(SAMPLERS.names())}")

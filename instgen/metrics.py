@@ -10,8 +10,9 @@ tests.  Conventions:
   TTS_q = t * ln(1 - q) / ln(1 - p), with q = 0.99.  At least one run is
   always needed, so the number of repetitions is never below 1 (p >= q gives
   TTS = t).  At p = 0 nothing bounds TTS from above; the figure given is the
-  lower bound that follows from the one-sided upper confidence limit on p,
-  and it is flagged as a lower bound.
+  lower bound that follows from the one-sided upper confidence limit on p
+  from the reads of *one* measurement (``bound_trials``), and it is flagged
+  as a lower bound: pooling more unsuccessful reads never raises it.
 """
 
 from __future__ import annotations
@@ -167,26 +168,46 @@ class OptimalTTS(Estimate):
     """TTS at the best effort of a grid.
 
     ``best`` indexes the grid; ``edge`` says the best sits at the smallest or
-    largest effort tried; ``per_effort`` holds each grid point's estimate.
+    largest effort tried; ``per_effort`` holds each grid point's estimate;
+    ``best_ci`` is the interval of the best effort itself (the efforts at
+    which the bootstrap replicates reach their minimum).
     """
 
     best: int = 0
     edge: bool = False
     per_effort: tuple = ()
+    best_ci: tuple = ()
+
+
+def zero_success_bound(effort: float, trials: int, confidence: float = 0.95, q: float = Q99) -> float:
+    """Lower bound on TTS_q at one effort where none of ``trials`` reads succeeded.
+
+    From the one-sided upper confidence limit on p, 1 - (1 - confidence)^(1/trials).
+
+    >>> round(zero_success_bound(1.0, 100), 1)
+    152.8
+    """
+    alpha = 1.0 - _check_confidence(confidence)
+    return float(effort * repetitions(1.0 - alpha ** (1.0 / int(trials)), q))
 
 
 def optimal_tts(efforts, successes, trials, *, q: float = Q99, confidence: float = 0.95, draws: int = 2000,
-                seed=0, bootstrap: str = "jeffreys") -> OptimalTTS:
+                seed=0, bootstrap: str = "jeffreys", bound_trials=None, floor: float | None = None) -> OptimalTTS:
     """Minimum over a grid of efforts (sweep counts) of TTS_q, with a bootstrap interval.
 
     The interval bootstraps every grid point together and takes the minimum
-    in each replicate.  ``kind`` is:
+    in each replicate (``draws=0`` skips it: the interval is then the value
+    itself, for ranking inside a search).  ``kind`` is:
 
     * ``"lower bound"`` when no read succeeded anywhere (the value is the
-      smallest of the per-point lower bounds);
+      smallest of the per-point lower bounds, each from at most
+      ``bound_trials`` reads, so that pooling more unsuccessful reads never
+      raises it);
     * ``"upper bound"`` when the minimum sits at either end of a grid of more
       than one point, or the grid has one point: the true optimum over all
-      anneal lengths can only be lower (Albash & Lidar, PRX 8, 031016 (2018));
+      anneal lengths can only be lower (Albash & Lidar, PRX 8, 031016 (2018)).
+      A minimum at ``floor`` (the least effort there is, e.g. one sweep) is
+      not an edge: nothing shorter can be run;
     * ``"value"`` otherwise.
 
     >>> est = optimal_tts([10, 100, 1000], [1, 60, 99], [100, 100, 100], seed=1)
@@ -203,29 +224,40 @@ def optimal_tts(efforts, successes, trials, *, q: float = Q99, confidence: float
     for ki, ni in zip(k, n):
         _check_counts(int(ki), int(ni))
     alpha = 1.0 - _check_confidence(confidence)
+    bound_n = n if bound_trials is None else np.minimum(n, int(bound_trials))
     p_hat = k / n
     point = t * repetitions(p_hat, q)
-    reps = np.sort(t * repetitions(_draw_p(k, n, int(draws), as_generator(seed), bootstrap), q), axis=0)
     lo_q, hi_q = alpha / 2.0, 1.0 - alpha / 2.0
+    reps = None
+    if draws:
+        reps = t * repetitions(_draw_p(k, n, int(draws), as_generator(seed), bootstrap), q)
     per = []
     for i in range(t.size):
         if k[i] == 0:
-            bound = float(t[i] * repetitions(1.0 - alpha ** (1.0 / n[i]), q))
+            bound = zero_success_bound(t[i], int(bound_n[i]), confidence, q)
             per.append(Estimate(bound, bound, math.inf, "lower bound"))
+        elif reps is None:
+            per.append(Estimate(float(point[i]), float(point[i]), float(point[i])))
         else:
             lo, hi = np.quantile(reps[:, i], [lo_q, hi_q])
             per.append(Estimate(float(point[i]), float(min(lo, point[i])), float(max(hi, point[i]))))
     if np.all(k == 0):
         best = int(np.argmin([e.value for e in per]))
         b = per[best]
-        return OptimalTTS(b.value, b.low, math.inf, "lower bound", best, False, tuple(per))
+        return OptimalTTS(b.value, b.low, math.inf, "lower bound", best, False, tuple(per), ())
     best = int(np.argmin(point))
-    mins = np.min(reps, axis=1)
-    lo, hi = np.quantile(mins, [lo_q, hi_q])
-    edge = t.size == 1 or best in (0, t.size - 1)
     value = float(point[best])
+    if reps is None:
+        lo = hi = value
+        best_ci = (float(t[best]), float(t[best]))
+    else:
+        lo, hi = np.quantile(np.min(reps, axis=1), [lo_q, hi_q])
+        where = t[np.argmin(reps, axis=1)]
+        best_ci = (float(np.quantile(where, lo_q, method="lower")), float(np.quantile(where, hi_q, method="higher")))
+    at_floor = floor is not None and best == 0 and t[0] <= floor
+    edge = t.size == 1 or best == t.size - 1 or (best == 0 and not at_floor)
     return OptimalTTS(value, float(min(lo, value)), float(max(hi, value)),
-                      "upper bound" if edge else "value", best, edge, tuple(per))
+                      "upper bound" if edge else "value", best, edge, tuple(per), best_ci)
 
 
 # ------------------------------------------------------------------ energies

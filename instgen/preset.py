@@ -66,6 +66,12 @@ def _pair(v):
     return None
 
 
+def _cold_list(v):
+    if len(v) > 8 or any(isinstance(x, bool) or not isinstance(x, (int, float)) or not 0 < x < _INF for x in v):
+        return "must be a list of at most 8 positive numbers (beta_cold x coupling scale)"
+    return None
+
+
 def _str_list(v):
     return None if all(isinstance(x, str) for x in v) else "must be a list of strings"
 
@@ -122,6 +128,10 @@ SCHEMA: dict[str, dict[str, tuple]] = {
         "search_solvers": (list, [], _str_list),
         "noise_sigma": ((int, float), 0.0, _nonneg),
         "noise_copies": (int, 0, _count(0, 1000)),
+        "pin_budget": ((int, float), 2e9, _upto(1e15)),
+        "pin_max_sweeps": (int, 1_000_000, _count(1, 10**7)),
+        "pin_successes": (int, 10, _count(1, 10_000)),
+        "cold_ends": (list, [], _cold_list),
     },
     "search": {
         "population": (int, 16, _count(2, 100_000)),

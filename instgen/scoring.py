@@ -57,11 +57,14 @@ RUN_SECONDS = 1e-3
 
 @dataclasses.dataclass(frozen=True)
 class MetricSpec:
-    """A named metric: which sweep counts it needs and how it is computed.
+    """A named metric: which sweep counts it needs, how it is computed, how it ranks.
 
-    ``counts`` is ``"grid"`` (every sweep count given), ``"one"`` (the largest)
-    or ``"pair"`` (the smallest and the largest).  ``harder`` says which
-    direction means a harder instance.
+    ``counts`` is ``"grid"`` (every sweep count given), ``"one"`` (the largest,
+    or the long anneal) or ``"pair"`` (the smallest and the largest, or the
+    short and the long anneal).  ``harder`` says which direction means a
+    harder instance.  ``rank`` turns a computed :class:`Score` into the
+    breeding fitness (higher = harder): a ranking key on top of the same
+    figure, never a second formula (see :func:`rank_key`).
     """
 
     name: str
@@ -71,6 +74,25 @@ class MetricSpec:
     harder: str
     compute: Callable
     needs_samples: bool = True
+    rank: Callable | None = None
+
+    def counts_for(self, sweeps=None, short: int | None = None, long: int | None = None) -> tuple[int, ...]:
+        """The sweep counts this metric is measured at.
+
+        ``sweeps`` is a grid; ``short`` and ``long`` (a preset's
+        ``short_sweeps`` and ``long_sweeps``) name the pair and the single
+        count when given.
+
+        >>> METRICS.get("gap").counts_for([10, 100, 1000])
+        (10, 1000)
+        >>> METRICS.get("residual").counts_for([10, 100], long=5000)
+        (5000,)
+        """
+        if self.counts == "pair" and short is not None and long is not None:
+            return _counts(self, [short, long])
+        if self.counts == "one" and long is not None:
+            return _counts(self, [long])
+        return _counts(self, sweeps)
 
 
 @dataclasses.dataclass
@@ -86,19 +108,32 @@ class Reference:
 
 @dataclasses.dataclass
 class _Run:
-    """What a metric's compute function sees for one solver."""
+    """What a metric's compute function sees for one solver.
 
-    instance: Instance
+    ``energies`` maps each sweep count to the final energies of every read
+    there (pooled over batches); ``batches`` keeps the sampler batches where
+    they exist (states, seeds, seconds), and is empty when the energies came
+    from elsewhere (the breeding fitness).  ``bound_reads`` is the reads of
+    one measurement: a never-solved figure is bounded from that many reads.
+    """
+
+    instance: Instance | None
+    n: int
+    has_fields: bool
     solver: str
     unit: str
     counts: tuple[int, ...]
-    batches: dict[int, SampleBatch]
+    energies: dict[int, np.ndarray]
     reference: Reference
-    scale: float
+    scale: float | None
     tol: float
     confidence: float
     seed: int
     notes: list[str]
+    batches: dict[int, list[SampleBatch]] = dataclasses.field(default_factory=dict)
+    bound_reads: int | None = None
+    draws: int = 2000
+    floor: int | None = None
 
 
 # --------------------------------------------------------------------- set-up
@@ -217,7 +252,7 @@ def _run_all(target: Instance, scorer: Instance, solvers, counts_by_solver, read
                             **options.get(name, {}))
             if target is not scorer:
                 b = dataclasses.replace(b, energies=scorer.energies(b.states))
-            batches[name, c] = b
+            batches[name, c] = [b]
     return batches
 
 
@@ -278,23 +313,37 @@ def check_effort(n: int, reads: int, counts, solvers: int = 1, copies: int = 1) 
             "use fewer reads or sweeps")
 
 
-def _tolerance(instance: Instance) -> float:
+def energy_tolerance(instance: Instance) -> float:
+    """Energies within this of the reference count as reaching it (relative to the instance's total coupling)."""
     return 1e-9 * max(1.0, float(np.abs(instance.J).sum() + np.abs(instance.h).sum()))
 
 
-def _scores(instance, specs, solvers, per_spec, batches, ref, scale, tol, confidence, seed, keys=()):
+
+def _unit(solver: str) -> str:
+    return getattr(SAMPLERS.get(solver), "effort_unit", "sweeps")
+
+
+def _pooled(batches: list[SampleBatch]) -> np.ndarray:
+    return batches[0].energies if len(batches) == 1 else np.concatenate([b.energies for b in batches])
+
+
+def _scores(instance, specs, solvers, per_spec, batches, ref, scale, tol, confidence, seed, keys=(), reads=None,
+            floor=None):
     out = []
     for name in solvers:
-        unit = getattr(SAMPLERS.get(name), "effort_unit", "sweeps")
+        unit = _unit(name)
         for spec in specs:
-            counts = per_spec[spec.name]
-            run = _Run(instance, name, unit, counts, {c: batches[name, c] for c in counts}, ref, scale, tol,
-                       confidence, derive_seed(seed, "bootstrap", name, spec.name, *keys), list(ref.notes))
+            counts = per_spec[name, spec.name] if (name, spec.name) in per_spec else per_spec[spec.name]
+            mine = {c: batches[name, c] for c in counts}
+            run = _Run(instance, instance.n, instance.has_fields, name, unit, counts,
+                       {c: _pooled(bs) for c, bs in mine.items()}, ref, scale, tol, confidence,
+                       derive_seed(seed, "bootstrap", name, spec.name, *keys), list(ref.notes), mine,
+                       bound_reads=reads, floor=floor)
             score = spec.compute(run)
-            first = run.batches[counts[0]]
+            first = mine[counts[0]][0]
             score.solver, score.reads = name, first.reads
             score.schedule = _recipe(first.schedule, counts)
-            score.seeds = [run.batches[c].seed for c in counts]
+            score.seeds = [b.seed for c in counts for b in mine[c]]
             score.reference, score.reference_status = ref.energy, ref.status
             score.notes = run.notes + score.notes
             score.extra = {"seed": seed, "confidence": confidence, "reference_source": ref.source, **score.extra}
@@ -302,10 +351,73 @@ def _scores(instance, specs, solvers, per_spec, batches, ref, scale, tol, confid
     return out
 
 
+def evaluate(metric: str, energies: dict, *, reference: float, n: int, scale: float | None = None,
+             tol: float = 1e-9, has_fields: bool = False, unit: str = "sweeps", bound_reads: int | None = None,
+             confidence: float = 0.95, seed=0, intervals: bool = True) -> Score:
+    """A named metric from raw final energies: the one implementation every figure comes from.
+
+    ``energies`` maps sweep counts to the final energies of the reads made
+    there.  :func:`measure_many` (``instgen score``, the run summary, the
+    library and the report) and the breeding fitness both compute their
+    figures here, so the same energies give the same number everywhere.
+    ``bound_reads`` is the reads of one measurement (a never-solved
+    figure rests on that many, however many were pooled); ``intervals=False``
+    skips the bootstrap (the interval is then the value itself).
+
+    >>> evaluate("success", {100: np.array([-4.0, -4.0, -2.0, 0.0])}, reference=-4.0, n=4).value
+    0.5
+    """
+    spec = METRICS.get(metric)
+    if not spec.needs_samples:
+        raise InputError(f"the {metric} metric needs the states as well as the energies; use measure_many")
+    counts = spec.counts_for(sorted(int(c) for c in energies))
+    ref = Reference(float(reference), "given", "energy given by the caller")
+    run = _Run(None, int(n), bool(has_fields), "", unit, counts,
+               {c: np.asarray(energies[c], dtype=np.float64) for c in counts}, ref, scale, float(tol),
+               confidence, int(seed) if not isinstance(seed, np.random.SeedSequence) else seed, [],
+               bound_reads=bound_reads, draws=2000 if intervals else 0)
+    score = spec.compute(run)
+    score.reference = float(reference)
+    return score
+
+
+def rank_key(score: Score, energies: dict | None = None, *, reference: float | None = None, n: int = 1,
+             scale: float | None = None) -> float:
+    """The breeding fitness of a computed figure: higher = harder.
+
+    * ``tts``: log10 of TTS99.  A never-solved candidate (a lower bound) ranks
+      as if one read in ``bound_reads + 1`` had succeeded at the longest
+      anneal, which is above every candidate solved at that resolution and
+      does not grow with pooled reads; among never-solved candidates a
+      larger residual energy after the longest anneal ranks higher (a term
+      below 0.01, so it only breaks ties).
+    * ``success``: 1 - p (a lower success probability is harder).
+    * ``gap``, ``residual``: the figure itself.
+
+    >>> rank_key(Score("success", 0.25))
+    0.75
+    """
+    spec = METRICS.get(score.metric)
+    return float(spec.rank(score, energies, reference, n, scale)) if spec.rank else float(score.value)
+
+
+def _rank_tts(score: Score, energies, reference, n, scale) -> float:
+    if score.kind != "lower bound":
+        return math.log10(score.value)
+    rows = score.extra["per_sweeps"]
+    top = rows[-1]
+    reads = score.extra.get("bound_reads") or top["reads"]
+    key = math.log10(M.tts(1.0 / (min(reads, top["reads"]) + 1), top["sweeps"]))
+    if energies is not None and reference is not None:
+        r = max(0.0, (float(np.mean(energies[top["sweeps"]])) - reference) / (max(n, 1) * (scale or 1.0)))
+        key += 0.01 * r / (1.0 + r)
+    return key
+
+
 # ------------------------------------------------------------------- public API
 def measure_many(instance: Instance, metrics=("tts",), solvers=("sa",), *, sweeps=None, reads: int = 100,
                  seed=0, reference=None, beta_range=None, scale=None, schedule: dict | None = None,
-                 options: dict | None = None, confidence: float = 0.95) -> list[Score]:
+                 options: dict | None = None, confidence: float = 0.95, pin: Pinning | None = None) -> list[Score]:
     """Several metrics under several solvers, from one set of runs.
 
     Parameters
@@ -329,6 +441,11 @@ def measure_many(instance: Instance, metrics=("tts",), solvers=("sa",), *, sweep
     options : dict, optional
         ``{solver: {option: value}}``.
     confidence : float
+    pin : Pinning, optional
+        Pin time-to-solution at its optimal number of sweeps (see
+        :class:`Pinning`): the grid given is only the start.  Without it, TTS99
+        is the best of the fixed grid, and a bound when that best sits at an
+        edge.
 
     Returns
     -------
@@ -343,13 +460,23 @@ def measure_many(instance: Instance, metrics=("tts",), solvers=("sa",), *, sweep
     """
     specs, solvers, per_spec, needed, options = _prepare(instance, metrics, solvers, sweeps, reads, options)
     br, scale, source = schedule_range(instance, beta_range, scale)
+    tol = energy_tolerance(instance)
+    if pin is not None and any(s.name == "tts" for s in specs):
+        return _measure_pinned(instance, specs, solvers, per_spec, needed, int(reads), seed, br, scale, source,
+                               schedule, options, confidence, pin, reference, tol)
     batches = _run_all(instance, instance, solvers, needed, int(reads), seed, br, schedule, options)
-    tol = _tolerance(instance)
-    ref = resolve_reference(instance, min(b.min_energy for b in batches.values()), reference, tol)
-    out = _scores(instance, specs, solvers, per_spec, batches, ref, scale, tol, confidence, seed)
+    ref = resolve_reference(instance, min(b.min_energy for bs in batches.values() for b in bs), reference, tol)
+    out = _scores(instance, specs, solvers, per_spec, batches, ref, scale, tol, confidence, seed, reads=int(reads),
+                  floor=1)
     for s in out:
         s.extra["beta_range_source"] = source
+        s.extra.update(_scaled_range(br, scale))
     return out
+
+
+def _scaled_range(br, scale) -> dict:
+    """The beta range in the instance's own units (beta x coupling scale)."""
+    return {"beta_range_scaled": [br[0] * scale, br[1] * scale]} if scale else {}
 
 
 def measure(instance: Instance, metric: str, *, sampler: str = "sa", sweeps=None, reads: int = 100, seed=0,
@@ -417,8 +544,8 @@ def measure_perturbed(instance: Instance, metric: str, sigma: float, copies: int
         noisy = instance.with_couplings(instance.J + rng.normal(0.0, sd, instance.m),
                                         instance.h + rng.normal(0.0, sd, instance.n))
         runs.append(_run_all(noisy, instance, solvers, needed, int(reads), seed, br, schedule, options, (k,)))
-    tol = _tolerance(instance)
-    lowest = min(b.min_energy for batches in runs for b in batches.values())
+    tol = energy_tolerance(instance)
+    lowest = min(b.min_energy for batches in runs for bs in batches.values() for b in bs)
     ref = resolve_reference(instance, lowest, reference, tol)
     per_copy = [_scores(instance, specs, solvers, per_spec, batches, ref, scale, tol, confidence, seed, (k,))[0]
                 for k, batches in enumerate(runs)]
@@ -446,40 +573,261 @@ def measure_perturbed(instance: Instance, metric: str, sigma: float, copies: int
                "reference_source": ref.source, "beta_range_source": source})
 
 
+# ------------------------------------------------------- TTS at its optimum
+@dataclasses.dataclass(frozen=True)
+class Pinning:
+    """How :func:`measure_many` pins time-to-solution at its optimal number of sweeps.
+
+    TTS99 is meaningful at the optimal anneal length (Ronnow et al., Science
+    345, 420 (2014); Albash & Lidar, PRX 8, 031016 (2018)), which no fixed
+    grid can promise to contain.  Starting from the grid given, the sweep
+    counts are extended geometrically (by ``factor``, down to one sweep and up
+    to ``max_sweeps``) until the minimum of TTS99 over sweep counts is
+    *interior*: both neighbours of the best count have a higher estimate.  Reads
+    are then doubled where needed until the best count rests on at least
+    ``successes`` successes and each neighbour either does too or is clearly
+    worse (its TTS99 lower confidence limit lies above the best estimate).
+    Everything costs spin updates, counted against ``budget`` for each solver
+    (and cold end); when the budget or ``max_sweeps`` stops the search, the
+    figure says so and names what the next step would have cost.
+
+    ``cold_ends`` optionally lists values of beta_cold x coupling scale to try
+    (the hot end stays); the figure is TTS99 at the best (sweeps, beta_cold)
+    pair, with every pair's result recorded.
+    """
+
+    budget: float = 2e9
+    max_sweeps: int = 1_000_000
+    successes: int = 10
+    factor: float = math.sqrt(10.0)
+    cold_ends: tuple = ()
+    max_steps: int = 40
+
+    def __post_init__(self):
+        for name, lo in (("budget", 1.0), ("max_sweeps", 1), ("successes", 1), ("max_steps", 1)):
+            v = getattr(self, name)
+            if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v) or v < lo:
+                raise InputError(f"pinning {name} must be a number of at least {lo:g}, got {v!r}")
+        if isinstance(self.factor, bool) or not isinstance(self.factor, (int, float)) or not 1.2 <= self.factor <= 10:
+            raise InputError(f"pinning factor must lie between 1.2 and 10, got {self.factor!r}")
+        for c in self.cold_ends:
+            if isinstance(c, bool) or not isinstance(c, (int, float)) or not math.isfinite(c) or c <= 0:
+                raise InputError(f"cold ends are positive numbers (beta_cold x coupling scale), got {c!r}")
+
+    def to_dict(self) -> dict:
+        return {"budget": float(self.budget), "max_sweeps": int(self.max_sweeps), "successes": int(self.successes),
+                "factor": float(self.factor), "cold_ends": [float(c) for c in self.cold_ends]}
+
+
+def next_step(counts, hits, reads, pin: Pinning, base_reads: int, confidence: float = 0.95):
+    """What the bracket does next: ("extend" | "more", sweep count, reads) or (None, reason, 0) when pinned.
+
+    ``counts``, ``hits`` and ``reads`` describe the points measured so far
+    (sorted by count).  Pure, so the rule can be read and tested on its own.
+
+    >>> next_step([10, 100, 1000], [0, 0, 0], [64, 64, 64], Pinning(), 64)
+    ('extend', 3162, 64)
+    >>> next_step([10, 100, 1000], [5, 40, 30], [64, 64, 64], Pinning(successes=5), 64)
+    (None, 'pinned', 0)
+    """
+    t = np.asarray(counts, dtype=np.float64)
+    k = np.asarray(hits, dtype=np.int64)
+    n = np.asarray(reads, dtype=np.int64)
+    top = int(t[-1])
+    up = min(int(pin.max_sweeps), max(top + 1, int(round(top * pin.factor))))
+    if not k.any():
+        if top >= pin.max_sweeps:
+            return None, f"no read reached the reference energy at up to {top:,} sweeps (the most allowed)", 0
+        return "extend", up, base_reads
+    point = t * M.repetitions(k / n)
+    b = int(np.argmin(point))
+    if b == t.size - 1:
+        if top >= pin.max_sweeps:
+            return None, f"the optimum lies at or beyond {top:,} sweeps, the most allowed", 0
+        return "extend", up, base_reads
+    if b == 0 and t[0] > 1:
+        return "extend", max(1, min(int(t[0]) - 1, int(round(t[0] / pin.factor)))), base_reads
+    if k[b] < pin.successes:
+        return "more", int(t[b]), int(n[b])
+    for j in (b - 1, b + 1):
+        if 0 <= j < t.size and k[j] < pin.successes:
+            p_hi = M.binomial_interval(int(k[j]), int(n[j]), confidence)[1]
+            if t[j] * M.repetitions(p_hi) < point[b]:
+                return "more", int(t[j]), int(n[j])
+    return None, "pinned", 0
+
+
+def _measure_pinned(instance, specs, solvers, per_spec, needed, reads, seed, br, scale, source, schedule, options,
+                    confidence, pin, reference, tol):
+    batches = _run_all(instance, instance, solvers, needed, reads, seed, br, schedule, options)
+    claimed = _claimed_reference(instance, reference, tol)
+    lowest = [min(b.min_energy for bs in batches.values() for b in bs)]
+
+    def target() -> float:
+        if claimed is not None and not lowest[0] < claimed.energy - tol:
+            return claimed.energy
+        return lowest[0]
+
+    chosen = {}
+    for name in solvers:
+        variants = []
+        colds = list(pin.cold_ends) or [None]
+        for cold in colds:
+            brc = br if cold is None else (br[0], float(cold) / scale if scale else float(cold))
+            if cold is None:
+                pts = {c: list(batches[name, c]) for c in per_spec["tts"]}
+            else:
+                pts = {c: list(bs) for (_, c), bs in _run_all(instance, instance, [name], {name: per_spec["tts"]},
+                                                              reads, derive_seed(seed, "cold", float(cold)), brc,
+                                                              schedule, options).items()}
+                lowest[0] = min(lowest[0], min(b.min_energy for bs in pts.values() for b in bs))
+            info = _bracket(instance, name, pts, reads, derive_seed(seed, "pin", float(cold or 0)), brc, schedule,
+                            options, pin, target, tol, confidence, lowest)
+            info["beta_range"] = list(brc)
+            if cold is not None:
+                info["cold_end"] = float(cold)
+            variants.append((pts, info))
+        chosen[name] = variants
+    ref = resolve_reference(instance, lowest[0], reference, tol)
+    out = []
+    for name in solvers:
+        rest = [s for s in specs if s.name != "tts"]
+        base = _scores(instance, rest, [name], per_spec, batches, ref, scale, tol, confidence, seed, reads=reads,
+                       floor=1) if rest else []
+        tried = []
+        for pts, info in chosen[name]:
+            counts = tuple(sorted(pts))
+            sc = _scores(instance, [METRICS.get("tts")], [name], {(name, "tts"): counts},
+                         {(name, c): bs for c, bs in pts.items()}, ref, scale, tol, confidence, seed, reads=reads,
+                         floor=1)[0]
+            tried.append((sc, info))
+        order = sorted(range(len(tried)), key=lambda i: (tried[i][0].kind != "value", tried[i][0].value, i))
+        score, info = tried[order[0]]
+        _pin_notes(score, info, pin)
+        if len(tried) > 1:
+            score.extra["cold_ends"] = [{"cold_end": i.get("cold_end"), "beta_range": i["beta_range"],
+                                         "tts": sc.value, "kind": sc.kind, "best_sweeps": sc.extra["best_sweeps"]}
+                                        for sc, i in tried]
+            score.extra["best_cold_end"] = info.get("cold_end")
+            score.notes.append("TTS99 at the best (sweeps, beta_cold) pair of " + ", ".join(
+                f"beta_cold x scale {i.get('cold_end'):g}" for _, i in tried) + "; every pair is recorded")
+        score.schedule = {**(score.schedule or {}), "beta_range": info["beta_range"]}
+        by_name = {s.metric: s for s in base + [score]}
+        out += [by_name[s.name] for s in specs]
+    for s in out:
+        s.extra["beta_range_source"] = source
+        if s.metric == "tts":
+            s.extra.update(_scaled_range(s.extra["pin"]["beta_range"], scale))
+        else:
+            s.extra.update(_scaled_range(br, scale))
+    return out
+
+
+def _bracket(instance, name, pts, reads, seed, br, schedule, options, pin, target, tol, confidence, lowest) -> dict:
+    """Extend and deepen ``pts`` (sweep count -> batches) until TTS99's optimum is pinned or the budget is spent."""
+    sampler = SAMPLERS.get(name)()
+    spent = float(sum(b.spin_updates for bs in pts.values() for b in bs))
+    some = next(b for bs in pts.values() for b in bs)
+    c0 = next(c for c, bs in pts.items() if some in bs)
+    per = (some.spin_updates / (some.reads * c0)) if some.spin_updates else float(instance.n)
+    info = {"budget": float(pin.budget), "steps": 0}
+    for step in range(int(pin.max_steps)):
+        counts = sorted(pts)
+        e0 = target()
+        hits = [sum(int(np.sum(M.successes(b.energies, e0, tol))) for b in pts[c]) for c in counts]
+        n = [sum(b.reads for b in pts[c]) for c in counts]
+        action, where, more = next_step(counts, hits, n, pin, reads, confidence)
+        if action is None:
+            info.update(pinned=where == "pinned", reason=where)
+            break
+        cost = float(more) * where * per
+        if spent + cost > pin.budget:
+            info.update(pinned=False, needed=cost, reason=(
+                f"the next step ({more:,} reads at {where:,} sweeps, {cost:.3g} spin updates) would pass the "
+                f"budget of {pin.budget:.3g} spin updates ({spent:.3g} spent); a budget of at least "
+                f"{spent + cost:.3g} allows it"))
+            break
+        sched = Schedule.from_dict({**(schedule or {}), "sweeps": int(where), "beta_range": tuple(br)})
+        b = sampler.run(instance, sched, reads=int(more), seed=derive_seed(seed, name, where, len(pts.get(where, []))),
+                        **options.get(name, {}))
+        pts.setdefault(where, []).append(b)
+        lowest[0] = min(lowest[0], b.min_energy)
+        spent += b.spin_updates or more * where * per
+        info["steps"] = step + 1
+    else:
+        info.update(pinned=False, reason=f"stopped after {pin.max_steps} steps without settling the optimum")
+    info["spent"] = spent
+    info["seconds"] = float(sum(b.seconds for bs in pts.values() for b in bs))
+    info.update(pin.to_dict())
+    return info
+
+
+def _pin_notes(score: Score, info: dict, pin: Pinning) -> None:
+    """Record how the optimum was pinned, and say plainly when it was not."""
+    score.extra["pin"] = {k: v for k, v in info.items()}
+    if info.get("pinned"):
+        lo, hi = score.extra.get("best_sweeps_ci", [score.extra["best_sweeps"]] * 2)
+        score.notes.append(f"pinned at its optimum: {score.extra['best_sweeps']} sweeps (95% interval {lo} to {hi}), "
+                           f"resting on at least {pin.successes} successes, for {info['spent']:.3g} spin updates")
+    elif score.kind == "value":
+        score.notes.append(f"the optimum is interior but not settled ({info['reason']}): the figure is a value with "
+                           "a wide interval")
+    else:
+        score.notes.append(f"not pinned: {info['reason']}")
+
+
 # ---------------------------------------------------------------- the metrics
 def _energies(run: _Run, c: int) -> np.ndarray:
-    return run.batches[c].energies
+    return run.energies[c]
 
 
 def _hits(run: _Run, c: int) -> int:
     return int(np.sum(M.successes(_energies(run, c), run.reference.energy, run.tol)))
 
 
+def _states(run: _Run, c: int) -> np.ndarray:
+    bs = run.batches[c]
+    return bs[0].states if len(bs) == 1 else np.concatenate([b.states for b in bs])
+
+
 def _tts(run: _Run) -> Score:
-    counts, reads = run.counts, [run.batches[c].reads for c in run.counts]
-    est = M.optimal_tts(counts, [_hits(run, c) for c in counts], reads, confidence=run.confidence, seed=run.seed)
+    counts = run.counts
+    reads = [int(_energies(run, c).size) for c in counts]
+    hits = [_hits(run, c) for c in counts]
+    est = M.optimal_tts(counts, hits, reads, confidence=run.confidence, seed=run.seed, draws=run.draws,
+                        bound_trials=run.bound_reads, floor=run.floor)
     rows, notes = [], []
-    for c, e, r in zip(counts, est.per_effort, reads):
-        k = _hits(run, c)
-        rows.append({"sweeps": c, "successes": k, "reads": r, "p": k / r,
-                     "p_ci": list(M.binomial_interval(k, r, run.confidence)), "tts": e.value, "tts_ci": list(e.ci),
-                     "kind": e.kind, "seed": run.batches[c].seed, "seconds": run.batches[c].seconds})
+    for c, e, r, k in zip(counts, est.per_effort, reads, hits):
+        row = {"sweeps": c, "successes": k, "reads": r, "p": k / r,
+               "p_ci": list(M.binomial_interval(k, r, run.confidence)), "tts": e.value, "tts_ci": list(e.ci),
+               "kind": e.kind}
+        if run.batches.get(c):
+            bs = run.batches[c]
+            row["seed"] = bs[0].seed if len(bs) == 1 else [b.seed for b in bs]
+            row["seconds"] = float(sum(b.seconds for b in bs))
+        rows.append(row)
     best = counts[est.best]
     u = run.unit
     if est.kind == "lower bound":
         notes.append(f"no read reached the reference energy at any number of {u} tried, so TTS99 is only a lower "
-                     f"bound; more {u} or more reads are needed to measure it")
+                     f"bound (from {run.bound_reads or min(reads)} reads per count); more {u} are needed to "
+                     "measure it")
     elif len(counts) == 1:
         notes.append(f"only one number of {u} was tried, so TTS99 is not optimised over anneal length: it is an "
                      "upper bound on the optimal TTS99")
     elif est.edge:
         side, where = ("shortest", "fewer") if est.best == 0 else ("longest", "more")
         notes.append(f"the best number of {u} is the {side} tried ({best}); the optimal TTS99 may be lower with "
-                     f"{where} {u}, so this figure is an upper bound (extend the grid)")
+                     f"{where} {u}, so this figure is an upper bound")
     extra = {"q": M.Q99, "best_sweeps": best, "per_sweeps": rows}
-    b = run.batches[best]
-    if rows[est.best]["successes"]:
-        extra["tts_seconds"] = b.seconds / b.reads * M.repetitions(rows[est.best]["p"])
+    if est.best_ci:
+        extra["best_sweeps_ci"] = [int(est.best_ci[0]), int(est.best_ci[1])]
+    if run.bound_reads:
+        extra["bound_reads"] = int(run.bound_reads)
+    bs = run.batches.get(best)
+    if bs and rows[est.best]["successes"]:
+        per_read = sum(b.seconds for b in bs) / sum(b.reads for b in bs)
+        extra["tts_seconds"] = per_read * M.repetitions(rows[est.best]["p"])
         extra["tts_seconds_note"] = "wall-clock time of this machine's surrogate, call overhead included"
     return Score("tts", est.value, est.ci, est.kind, units=u, notes=notes, extra=extra)
 
@@ -491,59 +839,61 @@ def _success(run: _Run) -> Score:
                  extra={"sweeps": c, "successes": _hits(run, c), "method": "wilson"})
 
 
+def _need_scale(run: _Run, what: str) -> float:
+    if not run.scale:
+        raise InputError(f"the {what} is normalised by the coupling scale; give scale= (--scale) for an instance "
+                         "without a coupling alphabet")
+    return run.scale
+
+
 def _residual(run: _Run) -> Score:
     c = run.counts[0]
-    est = M.residual_energy(_energies(run, c), run.reference.energy, run.instance.n, confidence=run.confidence)
-    extra = {"sweeps": c}
-    if run.scale:
-        extra["per_spin_per_scale"] = est.value / run.scale
-    return Score("residual", est.value, est.ci, units="energy per spin", extra=extra)
+    scale = _need_scale(run, "residual energy")
+    est = M.residual_energy(_energies(run, c), run.reference.energy, run.n, confidence=run.confidence)
+    return Score("residual", est.value / scale, (est.low / scale, est.high / scale),
+                 units="energy per spin / coupling scale",
+                 extra={"sweeps": c, "per_spin": est.value, "scale": scale})
 
 
 def _gap(run: _Run) -> Score:
     short, long = run.counts
-    if not run.scale:
-        raise InputError("the anneal gap is normalised by the coupling scale; give scale= for an instance "
-                         "without a coupling alphabet")
+    scale = _need_scale(run, "anneal gap")
     a, b = _energies(run, short), _energies(run, long)
-    est = M.anneal_gap(a, b, run.instance.n, run.scale, confidence=run.confidence)
+    est = M.anneal_gap(a, b, run.n, scale, confidence=run.confidence)
     return Score("gap", est.value, est.ci, units="energy per spin / coupling scale",
                  extra={"short_sweeps": short, "long_sweeps": long, "short_mean": float(a.mean()),
-                        "long_mean": float(b.mean()), "scale": run.scale})
+                        "long_mean": float(b.mean()), "scale": scale})
 
 
 def _ground_set(run: _Run, c: int) -> np.ndarray:
-    b = run.batches[c]
-    found, _ = M.distinct_states(b.states, b.energies, -math.inf, run.reference.energy + run.tol)
+    found, _ = M.distinct_states(_states(run, c), _energies(run, c), -math.inf, run.reference.energy + run.tol)
     known = run.reference.states
     return found if known is None else np.unique(np.concatenate([found, known]), axis=0)
 
 
 def _ground_states(run: _Run) -> Score:
     c = run.counts[0]
-    b = run.batches[c]
-    symmetric = not run.instance.has_fields
-    count = M.ground_state_count(b.states, b.energies, run.reference.energy, tol=run.tol, symmetric=symmetric,
+    symmetric = not run.has_fields
+    e = _energies(run, c)
+    count = M.ground_state_count(_states(run, c), e, run.reference.energy, tol=run.tol, symmetric=symmetric,
                                  known=run.reference.states)
     notes = ["a count of distinct ground states seen, so a lower bound on the degeneracy"]
     if symmetric:
         notes.append("no fields: each ground state's global flip is counted too")
     return Score("ground-states", float(count), None, "lower bound", units="states", notes=notes,
-                 extra={"sweeps": c, "found_in_reads": int(np.sum(M.successes(b.energies, run.reference.energy,
-                                                                                run.tol)))})
+                 extra={"sweeps": c, "found_in_reads": int(np.sum(M.successes(e, run.reference.energy, run.tol)))})
 
 
 def _deception(run: _Run) -> Score:
     c = run.counts[0]
-    b = run.batches[c]
     ground = _ground_set(run, c)
-    n = run.instance.n
+    n = run.n
     if ground.shape[0] == 0:
         return Score("deception", math.nan, None, units="spins", notes=[
             "no ground state is known (none found, none planted or certified), so no distance can be measured"],
             extra={"sweeps": c})
-    d, e1 = M.excited_distances(b.states, b.energies, run.reference.energy, ground, tol=run.tol,
-                                symmetric=not run.instance.has_fields)
+    d, e1 = M.excited_distances(_states(run, c), _energies(run, c), run.reference.energy, ground, tol=run.tol,
+                                symmetric=not run.has_fields)
     if d.size == 0:
         return Score("deception", math.nan, None, units="spins", notes=[
             "every read reached the reference energy, so no excited state was seen to measure from"],
@@ -557,11 +907,12 @@ def _deception(run: _Run) -> Score:
 
 
 for _spec in (
-    MetricSpec("tts", "time-to-solution TTS99 at the best sweep count of a grid", "grid", (10, 100, 1000),
-               "higher", _tts),
+    MetricSpec("tts", "time-to-solution TTS99 at the optimal sweep count (pinned by instgen score; the best of "
+               "a fixed grid with --fixed-grid)", "grid", (10, 100, 1000), "higher", _tts, rank=_rank_tts),
     MetricSpec("success", "probability that a read reaches the reference energy", "one", (1000,), "lower",
-               _success),
-    MetricSpec("residual", "mean energy above the reference, per spin", "one", (1000,), "higher", _residual),
+               _success, rank=lambda score, *_: 1.0 - score.value),
+    MetricSpec("residual", "mean energy above the reference, per spin and coupling scale", "one", (1000,),
+               "higher", _residual),
     MetricSpec("gap", "mean energy after a short anneal minus after a long one, per spin and coupling scale",
                "pair", (10, 1000), "higher", _gap),
     MetricSpec("ground-states", "distinct ground states seen (a lower bound on degeneracy)", "one", (1000,),
@@ -570,3 +921,6 @@ for _spec in (
                "one", (1000,), "higher", _deception, needs_samples=False),
 ):
     METRICS.register(_spec.name, _spec)
+
+#: The metrics a breeding fitness can name (those computed from final energies alone).
+FITNESS_METRICS = tuple(n for n in METRICS.names() if METRICS.get(n).needs_samples)

@@ -159,9 +159,13 @@ def test_gap_is_unchanged_when_couplings_and_alphabet_scale_together(c2):
     assert b.extra["short_mean"] == pytest.approx(2 * a.extra["short_mean"])
 
 
-def test_residual_per_spin(c2):
+def test_residual_per_spin_and_coupling_scale(c2):
     s = measure(certified(make_instance("chimera:1", "gaussian", seed=3)), "residual", sweeps=5, reads=50, seed=1)
-    assert s.value >= 0 and s.units == "energy per spin" and s.ci[0] <= s.value <= s.ci[1]
+    assert s.value >= 0 and s.units == "energy per spin / coupling scale" and s.ci[0] <= s.value <= s.ci[1]
+    # (mean E - E0) / (n * scale): doubling every coupling and the scale leaves it unchanged
+    inst = certified(make_instance("chimera:1", "int:2", seed=3))
+    a = measure(inst, "residual", sweeps=5, reads=50, seed=1)
+    assert a.value == pytest.approx(a.extra["per_spin"] / 2.0)
 
 
 def test_ground_states_and_deception_on_a_chain():

@@ -8,7 +8,7 @@ import math
 from ..errors import InputError
 from ..io import load_instance
 from ..samplers.schedule import INTERPOLATIONS, SHAPES
-from ..scoring import COMBINE, METRICS, measure_many, measure_perturbed
+from ..scoring import COMBINE, METRICS, Pinning, measure_many, measure_perturbed
 from ._common import add_json, add_seed, int_list, positive_int, print_json
 
 NAME = "score"
@@ -23,6 +23,12 @@ schedules, confidence intervals and the seeds used, e.g.
 
 metrics:
 """ + "\n".join(f"  {n:<14} {METRICS.get(n).summary}" for n in METRICS.names()) + """
+
+TTS99 is pinned at its optimal number of sweeps: starting from --sweeps, the
+sweep counts are extended (down to 1, up to --max-sweeps) and reads added
+until the minimum is interior and rests on --min-successes successes, within
+--budget spin updates per solver.  What is left a bound says why and what the
+next step would cost.  --fixed-grid keeps to the sweep counts given.
 
 The reference energy is the instance's certificate, else its planted state,
 else the lowest energy found in this run (then it is NOT a proven optimum and
@@ -69,7 +75,31 @@ def add_arguments(p):
     p.add_argument("--copies", type=positive_int, default=8, help="perturbed copies (default 8)")
     p.add_argument("--combine", choices=list(COMBINE), default="median", help="how copies combine (default median)")
     p.add_argument("--confidence", type=float, default=0.95, help="confidence level of intervals (default 0.95)")
+    g = p.add_argument_group("time-to-solution at its optimum")
+    g.add_argument("--fixed-grid", action="store_true",
+                   help="TTS99 at the best of the sweep counts given, without pinning the optimum (may be a bound)")
+    g.add_argument("--budget", type=float, default=Pinning.budget, metavar="UPDATES",
+                   help=f"spin updates each solver may spend pinning TTS99 (default {Pinning.budget:.0e})")
+    g.add_argument("--max-sweeps", type=positive_int, default=Pinning.max_sweeps, metavar="N",
+                   help=f"longest anneal tried while pinning (default {Pinning.max_sweeps:,})")
+    g.add_argument("--min-successes", type=positive_int, default=Pinning.successes, metavar="K",
+                   help=f"successes the optimum must rest on (default {Pinning.successes})")
+    g.add_argument("--cold-ends", type=_floats, metavar="LIST",
+                   help="also try these cold ends, as beta_cold x coupling scale (e.g. 2,5,10), and report TTS99 "
+                        "at the best (sweeps, beta_cold) pair")
     add_json(p)
+
+
+def _floats(text):
+    import argparse
+
+    try:
+        vals = [float(x) for x in text.split(",") if x.strip()]
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected numbers separated by commas, got {text!r}") from None
+    if not vals:
+        raise argparse.ArgumentTypeError(f"expected numbers separated by commas, got {text!r}")
+    return vals
 
 
 def _options(items, solvers) -> dict:
@@ -112,7 +142,10 @@ def compute(args):
     common = dict(sweeps=args.sweeps, reads=args.reads, seed=args.seed, beta_range=args.beta_range,
                   scale=args.scale, schedule=_schedule(args) or None, confidence=args.confidence)
     if args.perturb is None:
-        return inst, measure_many(inst, args.metric, solvers, options=options, **common)
+        pin = None if args.fixed_grid else Pinning(budget=args.budget, max_sweeps=args.max_sweeps,
+                                                   successes=args.min_successes,
+                                                   cold_ends=tuple(args.cold_ends or ()))
+        return inst, measure_many(inst, args.metric, solvers, options=options, pin=pin, **common)
     return inst, [measure_perturbed(inst, m, args.perturb, args.copies, sampler=s, combine=args.combine,
                                     **options.get(s, {}), **common)
                   for s in solvers for m in args.metric]
@@ -175,7 +208,8 @@ def _print(path, inst, scores):
     if first.reference_status not in ("planted", "proven"):
         print("           NOT a proven optimum: success and TTS are measured against it as it stands")
     print(f"schedule   beta range from the {first.extra.get('beta_range_source', 'caller')}")
-    print(f"seed       {first.extra.get('seed')}; reads {first.reads} per sweep count")
+    print(f"seed       {first.extra.get('seed')}; {first.reads} reads per sweep count"
+          + (", more where pinning TTS99 needs them" if any(x.extra.get("pin") for x in scores) else ""))
     shown = set()
     for note in first.notes:
         if note.startswith(("the reference", "a sampler found", "the certificate")):
@@ -189,13 +223,28 @@ def _print(path, inst, scores):
         conf = f"{first.extra.get('confidence', 0.95):.0%}"
         label_ci = "range" if s.extra.get("ci_is_range") else f"{conf} CI"
         ci = "" if s.ci is None else f"  [{label_ci} {_num(s.ci[0])} .. {_num(s.ci[1])}]"
-        where = f"  best at {s.extra['best_sweeps']} {s.units}" if "best_sweeps" in s.extra else ""
+        where = ""
+        if "best_sweeps" in s.extra and s.kind != "lower bound":
+            lo, hi = s.extra.get("best_sweeps_ci", (None, None))
+            where = f"  at {s.extra['best_sweeps']:,} {s.units}" + (
+                f" [{label_ci} {lo:,} .. {hi:,}]" if lo is not None else "")
         label = "TTS99" if s.metric == "tts" else s.metric
         print(f"  {label:<14} {_value(s)}{ci}{where}")
         for row in s.extra.get("per_sweeps", []):
             bound = {"lower bound": ">= ", "upper bound": "<= "}.get(row["kind"], "")
-            print(f"      {row['sweeps']:>8} {s.units}: p = {row['p']:.4g} [{_num(row['p_ci'][0])} .. "
+            print(f"      {row['sweeps']:>8} {s.units}: {row['successes']:,} of {row['reads']:,} reads, "
+                  f"p = {row['p']:.4g} [{_num(row['p_ci'][0])} .. "
                   f"{_num(row['p_ci'][1])}], TTS99 {bound}{_num(row['tts'])}")
+        pin = s.extra.get("pin")
+        if pin:
+            b0, b1 = s.extra.get("beta_range_scaled", pin["beta_range"])
+            print(f"      {'pinned' if pin['pinned'] else 'NOT pinned'}: {pin['spent']:.3g} of {pin['budget']:.3g} "
+                  f"spin updates, beta x scale {b0:.3g} .. {b1:.3g}"
+                  + ("" if pin["pinned"] else f"; {pin['reason']}"))
+        for c in s.extra.get("cold_ends", []):
+            print(f"      cold end beta x scale {c['cold_end']:g}: TTS99 "
+                  f"{ {'lower bound': '>= ', 'upper bound': '<= '}.get(c['kind'], '')}{_num(c['tts'])} at "
+                  f"{c['best_sweeps']:,} {s.units}")
         if "tts_seconds" in s.extra:
             print(f"      TTS99 in seconds: {_num(s.extra['tts_seconds'])} (wall clock on this machine, overhead included)")
         print(f"      sampler seeds {', '.join(str(x) for x in s.seeds[:8])}" + (" ..." if len(s.seeds) > 8 else ""))

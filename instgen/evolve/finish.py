@@ -27,26 +27,23 @@ import numpy as np
 from ..io import atomic_write, save_instance
 from ..make import make_instance
 from ..preset import preset_hash
-from ..scoring import measure_many
+from ..scoring import METRICS, Pinning, measure_many
 from ..seeds import derive_seed
 
 SUMMARY_VERSION = 1
 
 
 def _final_metrics(ctx) -> list[str]:
-    if ctx.metric == "composite":
-        return list(ctx.weights)
     if ctx.user is not None:
         return ["tts"]
-    return [ctx.metric]
+    return ctx.metric_names()
 
 
-def _sweeps_for(metric: str, ctx):
-    if metric == "tts":
-        return list(ctx.sweeps)
-    if metric == "gap":
-        return [ctx.short_sweeps, ctx.long_sweeps]
-    return [ctx.long_sweeps]
+def pinning(cfg) -> Pinning:
+    """How the figures that leave the search pin TTS99 at its optimum (the [fitness] pin_* keys)."""
+    f = cfg["fitness"]
+    return Pinning(budget=float(f["pin_budget"]), max_sweeps=int(f["pin_max_sweeps"]),
+                   successes=int(f["pin_successes"]), cold_ends=tuple(float(c) for c in f["cold_ends"]))
 
 
 def _certify(inst, cfg):
@@ -58,12 +55,15 @@ def _certify(inst, cfg):
 
 
 def _measure(inst, cfg, ctx, seed):
+    """The run's metrics on fresh seeds under every solver; TTS99 pinned at its optimum."""
     solvers = list(dict.fromkeys([ctx.sampler] + list(cfg["fitness"]["solvers"])))
     scores = []
     for metric in _final_metrics(ctx):
-        scores += measure_many(inst, [metric], solvers, sweeps=_sweeps_for(metric, ctx),
+        counts = METRICS.get(metric).counts_for(ctx.sweeps, ctx.short_sweeps, ctx.long_sweeps)
+        scores += measure_many(inst, [metric], solvers, sweeps=list(counts),
                                reads=cfg["fitness"]["confirm_reads"], seed=seed, beta_range=ctx.beta_range,
-                               schedule={"interpolation": ctx.interpolation})
+                               schedule={"interpolation": ctx.interpolation},
+                               pin=pinning(cfg) if metric == "tts" else None)
     return scores
 
 
@@ -127,6 +127,7 @@ def finish(breeder, result: dict) -> dict:
         "stopped": result["stopped"], "generations": result["generations"], "evaluations": result["evaluations"],
         "elapsed": result["elapsed"], "winners": winners, "baseline": baseline,
     }
+    summary["measuring"] = {"pinning": pinning(cfg).to_dict(), **measuring_cost(summary)}
     summary["comparison"] = compare(summary)
     summary["cautions"] = cautions(summary)
     if cfg["library"]["path"] and winners:
@@ -192,14 +193,33 @@ def cautions(summary: dict) -> list[str]:
     if base["count"] and base["certified"] < base["count"]:
         out.append(f"{base['count'] - base['certified']} of {base['count']} random baseline instances have no proven "
                    "optimum; their figures are measured against the best energy found.")
-    bounds = {(e["file"], s["solver"]) for e in summary["winners"] for s in e["scores"] if s["kind"] != "value"}
-    if bounds:
-        out.append(f"{len(bounds)} winner figure(s) are bounds, not values (no success at any sweep count, or the "
-                   "best sweep count at the edge of the grid): widen the sweep grid to pin them down.")
+    for group, entries in (("winner", summary["winners"]), ("random baseline", summary["baseline"]["instances"])):
+        bounds = [s for e in entries for s in e["scores"] if s["kind"] != "value"]
+        if bounds:
+            out.append(f"{len(bounds)} of {sum(len(e['scores']) for e in entries)} {group} figures are bounds, not "
+                       "values: " + "; ".join(sorted({_why_bound(s) for s in bounds})) + ".")
     out.append("Hardness was measured on " + ", ".join(summary["run"]["solvers"]) + " only; other solvers may "
                "find these instances easier or harder.")
     if not summary["winners"]:
         out.append("The hall of fame is empty: no candidate was confirmed on fresh seeds.")
+    return out
+
+
+def _why_bound(score: dict) -> str:
+    pin = (score.get("extra") or {}).get("pin")
+    if pin and pin.get("reason") and not pin.get("pinned"):
+        return f"{score['solver']} {score['metric']}: {pin['reason']}"
+    return f"{score['solver']} {score['metric']}: measured on a fixed grid ({score['kind']})"
+
+
+def measuring_cost(summary: dict) -> dict:
+    """What pinning the figures after the search cost: spin updates and sampler seconds, by group."""
+    out = {}
+    for group, entries in (("winners", summary["winners"]), ("baseline", summary["baseline"]["instances"])):
+        pins = [s["extra"]["pin"] for e in entries for s in e["scores"] if (s.get("extra") or {}).get("pin")]
+        out[group] = {"figures": len(pins), "pinned": sum(bool(p.get("pinned")) for p in pins),
+                      "spin_updates": float(sum(p["spent"] for p in pins)),
+                      "seconds": float(sum(p.get("seconds", 0.0) for p in pins))}
     return out
 
 

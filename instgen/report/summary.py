@@ -26,6 +26,10 @@ def score_text(s: dict) -> str:
     ci = s.get("ci")
     if ci and all(x is not None for x in ci):
         text += f" [{_num(ci[0])}, {_num(ci[1])}]"
+    extra = s.get("extra") or {}
+    if s["metric"] == "tts" and extra.get("best_sweeps") and s["kind"] != "lower bound":
+        lo, hi = extra.get("best_sweeps_ci") or (None, None)
+        text += f" at {extra['best_sweeps']:,}" + (f" [{lo:,}-{hi:,}]" if lo is not None and lo != hi else "")
     return text
 
 
@@ -77,7 +81,16 @@ def print_summary(summary: dict, stream=None) -> None:
     searched = run["sampler"] + ("".join(f", {x}" for x in run.get("search_solvers", [])))
     least = " (the least over these)" if run.get("search_solvers") else ""
     w(f"fitness: {run['metric']} on {searched}{least}; figures below re-measured on fresh seeds "
-      f"against the certified energy\n\n")
+      f"against the certified energy\n")
+    m = summary.get("measuring")
+    if m and (m["winners"]["figures"] or m["baseline"]["figures"]):
+        w(f"TTS99 at the optimal sweep count (value [95% interval] at sweeps [interval]), pinned for each solver "
+          f"within {m['pinning']['budget']:.3g} spin updates and {m['pinning']['max_sweeps']:,} sweeps: "
+          f"{m['winners']['pinned']} of {m['winners']['figures']} winner and {m['baseline']['pinned']} of "
+          f"{m['baseline']['figures']} baseline figures pinned, for "
+          f"{m['winners']['spin_updates'] + m['baseline']['spin_updates']:.3g} spin updates "
+          f"({m['winners']['seconds'] + m['baseline']['seconds']:.0f} s of sampling)\n")
+    w("\n")
     winners = summary["winners"]
     base = summary["baseline"]
     widths = _widths([winners, base["instances"]], run["solvers"])

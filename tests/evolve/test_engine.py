@@ -7,7 +7,7 @@ import pytest
 
 from instgen.evolve.engine import Breeder
 from instgen.evolve.executors import PoolExecutor, SerialExecutor
-from instgen.fitness import Context, Measurement, pool, tts_from_energies, value
+from instgen.fitness import Context, Measurement, pool, value
 from instgen.metrics import tts
 from instgen.preset import validate
 from instgen.seeds import derive_seed
@@ -93,17 +93,6 @@ def test_elites_are_pooled_across_generations(tmp_path):
     assert survivors, "elites carried over should have been measured more than once"
     for ind in survivors:
         assert all(len(e) == 16 * ind.measured for e in ind.measurement.energies.values())
-
-
-def test_tts_pooled_matches_metrics_definition():
-    # TTS99 = t ln(0.01) / ln(1 - p) (Ronnow et al., Science 345, 420 (2014)), at the best sweep count.
-    energies = {10: np.array([-1.0, 0, 0, 0]), 100: np.array([-1.0, -1.0, 0, 0])}
-    d = tts_from_energies(energies, -1.0)
-    assert d["sweeps"] == 10
-    assert d["tts"] == pytest.approx(10 * np.log(0.01) / np.log(0.75))
-    assert d["tts"] == pytest.approx(tts(0.25, 10))
-    never = tts_from_energies({10: np.zeros(4)}, -1.0)
-    assert never["bound"] and never["tts"] == pytest.approx(tts(1 / 5, 10))
 
 
 def test_pooling_concatenates_measurements():
