@@ -196,3 +196,75 @@ def test_perturbed_copies_score_on_the_original():
     assert again.to_dict() == loud.to_dict()
     with pytest.raises(InputError, match="sigma"):
         measure_perturbed(inst, "success", -1.0)
+
+
+# -------------------------------------------------------- TTS at its optimum
+# TTS99 is quotable only at the optimal anneal length; an optimum at the edge of the
+# sweep counts tried is a bound (Ronnow et al., Science 345, 420 (2014); Albash & Lidar,
+# PRX 8, 031016 (2018)).
+from instgen.scoring import Pinning, next_step  # noqa: E402
+
+
+def test_next_step_extends_where_the_optimum_may_lie():
+    pin = Pinning(successes=5)
+    assert next_step([10, 100], [0, 0], [64, 64], pin, 64) == ("extend", 316, 64)  # never solved: longer
+    assert next_step([10, 100], [2, 60], [64, 64], pin, 64) == ("extend", 316, 64)  # best at the long end
+    assert next_step([10, 100], [60, 64], [64, 64], pin, 64) == ("extend", 3, 64)  # best at the short end
+    assert next_step([1, 10, 100], [60, 64, 64], [64, 64, 64], pin, 64)[0] is None  # nothing shorter than 1
+    assert next_step([10, 100, 1000], [0, 3, 40], [64, 64, 64], pin, 64) == ("extend", 3162, 64)
+    # interior but resting on too few successes: double the reads there
+    assert next_step([10, 100, 1000], [0, 3, 1], [64, 64, 64], pin, 64) == ("more", 100, 64)
+    stop = next_step([10, 100], [0, 0], [64, 64], Pinning(max_sweeps=100), 64)
+    assert stop[0] is None and "most allowed" in stop[1]
+
+
+def test_pinned_tts_is_an_interior_minimum_and_a_value():
+    # the gauged ferromagnet is solved by long anneals almost always, so TTS99 = t there
+    # and is larger at long t: the optimum is interior once short anneals are tried
+    inst = planted_chimera()
+    fixed = measure(inst, "tts", sweeps=[200, 400], reads=64, seed=3)
+    assert fixed.kind == "upper bound"  # best at the short edge of the grid given
+    s = measure_many(inst, ["tts"], ["sa"], sweeps=[200, 400], reads=64, seed=3, pin=Pinning())[0]
+    assert s.kind == "value" and s.extra["pin"]["pinned"]
+    rows = s.extra["per_sweeps"]
+    counts = [r["sweeps"] for r in rows]
+    assert counts[0] < 200 and s.extra["best_sweeps"] not in (counts[0], counts[-1]) or counts[0] == 1
+    assert s.value == min(r["tts"] for r in rows if r["successes"])
+    assert s.value <= fixed.value
+    best = next(r for r in rows if r["sweeps"] == s.extra["best_sweeps"])
+    assert best["successes"] >= Pinning().successes
+    lo, hi = s.extra["best_sweeps_ci"]
+    assert lo <= s.extra["best_sweeps"] <= hi
+    again = measure_many(inst, ["tts"], ["sa"], sweeps=[200, 400], reads=64, seed=3, pin=Pinning())[0]
+    assert (again.value, again.ci, again.seeds) == (s.value, s.ci, s.seeds)  # same seed, same figure
+    assert [(r["sweeps"], r["successes"], r["reads"]) for r in again.extra["per_sweeps"]] == [
+        (r["sweeps"], r["successes"], r["reads"]) for r in rows]
+
+
+def test_a_spent_budget_leaves_a_bound_that_names_the_budget():
+    inst = planted_chimera()
+    s = measure_many(inst, ["tts"], ["sa"], sweeps=[200, 400], reads=64, seed=3, pin=Pinning(budget=1e6))[0]
+    assert s.kind == "upper bound" and not s.extra["pin"]["pinned"]
+    assert "budget of 1e+06 spin updates" in s.extra["pin"]["reason"]
+    assert any("not pinned" in n for n in s.notes)
+
+
+def test_never_solved_up_to_the_longest_anneal_is_a_lower_bound():
+    inst = planted_chimera()
+    # no read can reach an energy below the ground state: never solved
+    s = measure_many(inst, ["tts"], ["sa"], sweeps=[5, 10], reads=16, seed=1, reference=inst.planted_energy - 4,
+                     pin=Pinning(max_sweeps=40))[0]
+    assert s.kind == "lower bound" and [r["sweeps"] for r in s.extra["per_sweeps"]] == [5, 10, 32, 40]
+    assert all(r["reads"] == 16 for r in s.extra["per_sweeps"])
+    assert "most allowed" in s.extra["pin"]["reason"]
+
+
+def test_cold_ends_are_tried_and_the_best_pair_recorded():
+    inst = planted_chimera()
+    s = measure_many(inst, ["tts"], ["sa"], sweeps=[20, 200], reads=32, seed=2,
+                     pin=Pinning(cold_ends=(1.0, 5.0)))[0]
+    tried = s.extra["cold_ends"]
+    assert [c["cold_end"] for c in tried] == [1.0, 5.0]
+    assert s.extra["best_cold_end"] in (1.0, 5.0)
+    assert s.schedule["beta_range"][1] == pytest.approx(s.extra["best_cold_end"])  # scale 1: beta = value
+    assert s.value == min(c["tts"] for c in tried if c["kind"] == "value")

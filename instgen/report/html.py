@@ -151,7 +151,13 @@ def score_cell(s: dict | None) -> str:
     tip = f' title="{esc(kind)}: the true value may lie beyond it"' if sign else ""
     value = s.get("value")
     exact = f' data-value="{esc(repr(float(value)))}"' if isinstance(value, (int, float)) else ""
-    return f'<td class="num"{exact} data-kind="{esc(kind)}"{tip}>{sign}{fmt(value)}{interval}</td>'
+    extra = s.get("extra") or {}
+    at = ""
+    if s.get("metric") == "tts" and extra.get("best_sweeps") and kind != "lower bound":
+        lo, hi = extra.get("best_sweeps_ci") or (None, None)
+        span = f" [{fmt(lo)}, {fmt(hi)}]" if lo is not None and lo != hi else ""
+        at = f' <span class="ci">at {fmt(extra["best_sweeps"])}{span}</span>'
+    return f'<td class="num"{exact} data-kind="{esc(kind)}"{tip}>{sign}{fmt(value)}{interval}{at}</td>'
 
 
 def score_head(metric: str, solver: str, scores) -> str:
@@ -160,9 +166,11 @@ def score_head(metric: str, solver: str, scores) -> str:
     return f"{metric} on {solver}" + (f" ({units})" if units else "")
 
 
-BOUND_NOTE = ('<p class="note">Scores: value [95% interval]. ≤ marks an upper bound and ≥ a lower bound '
-              "(the best sweep count at the edge of the grid, or no read reached the ground state): the true "
-              "value may lie beyond it.</p>")
+BOUND_NOTE = ('<p class="note">Scores: value [95% interval]; time-to-solution TTS99 is given at its optimal '
+              "sweep count, found by extending the sweep counts and adding reads until the minimum is interior "
+              "(\u201cat N [interval]\u201d: the optimal sweep count and its bootstrap interval). ≤ marks an upper "
+              "bound and ≥ a lower bound (the budget ran out with the optimum at the edge of the counts tried, or no "
+              "read reached the ground state): the true value may lie beyond it.</p>")
 
 
 def table(head: list[str], rows: list[list[str]], cls: str = "") -> str:

@@ -11,6 +11,8 @@ def fitness_text(cfg: dict, v) -> str:
         return "-"
     if cfg["fitness"]["metric"] == "tts":
         return f"{10 ** v:.3g} sw"
+    if cfg["fitness"]["metric"] == "success":  # the fitness ranks 1 - p; show p
+        return f"p {1 - v:.4g}"
     return f"{v:.4g}"
 
 

@@ -73,20 +73,12 @@ def _curve(folder, entry, run, reads, measure, seed, notes):
     return c
 
 
-def fitness_words(metric: str):
-    """(column words, converter) for a run's fitness values: TTS fitness is log10 TTS99 in sweeps."""
-    if metric == "tts":
-        return "TTS99 (sweeps)", lambda v: None if v is None else 10.0 ** v
-    return f"fitness ({metric})", lambda v: v
-
-
 def _winners_table(summary: dict) -> str:
     run = summary["run"]
     metrics = sorted({s["metric"] for e in summary["winners"] for s in e["scores"]})
     pairs = [(m, s) for m in metrics for s in run["solvers"]]
-    fit_name, conv = fitness_words(run["metric"])
     head = ["#", "file", "spins", "couplings", "ground-state energy", "how it is known", "certify time (s)",
-            "ground states found", "found in generation", f"search {fit_name}", f"confirmed {fit_name}"]
+            "ground states found", "found in generation"]
     planted = any(e.get("construction") for e in summary["winners"])
     head += ["planted family"] if planted else []
     head += [score_head(m, s, [_score(e, m, s) for e in summary["winners"]]) for m, s in pairs]
@@ -96,8 +88,7 @@ def _winners_table(summary: dict) -> str:
         gen = e.get("generation")
         rows.append([num_cell(e["rank"]), text_cell(e["file"]), num_cell(e["n"]), num_cell(e["m"]),
                      num_cell(c["energy"], 10), status_cell(c), num_cell(c.get("seconds"), 3),
-                     num_cell(c.get("ground_states")), num_cell(None if gen is None else gen + 1),
-                     num_cell(conv(e.get("search_fitness"))), num_cell(conv(e.get("confirmed_fitness")))]
+                     num_cell(c.get("ground_states")), num_cell(None if gen is None else gen + 1)]
                     + ([text_cell(e.get("construction") or "–")] if planted else [])
                     + [score_cell(_score(e, m, s)) for m, s in pairs])
     return table(head, rows, "winners")

@@ -6,17 +6,17 @@ import math
 import sys
 
 
-def _num(v, unit="") -> str:
+def _num(v, unit="", digits=3) -> str:
     if v is None:
         return "-"
     if isinstance(v, float) and math.isinf(v):
         return "never reached"
-    return f"{v:.3g}{unit}"
+    return f"{v:.{digits}g}{unit}"
 
 
-def score_text(s: dict) -> str:
+def score_text(s: dict, units: bool = True) -> str:
     """One score as a reader would say it: value, interval, and whether it is a bound."""
-    units = f" {s['units']}" if s.get("units") else ""
+    units = f" {s['units']}" if s.get("units") and units else ""
     if s["kind"] == "lower bound":
         text = f">= {_num(s['value'])}{units}"
     elif s["kind"] == "upper bound":
@@ -25,11 +25,11 @@ def score_text(s: dict) -> str:
         text = f"{_num(s['value'])}{units}"
     ci = s.get("ci")
     if ci and all(x is not None for x in ci):
-        text += f" [{_num(ci[0])}, {_num(ci[1])}]"
+        text += f" [{_num(ci[0], digits=2)}, {_num(ci[1], digits=2)}]"
     extra = s.get("extra") or {}
     if s["metric"] == "tts" and extra.get("best_sweeps") and s["kind"] != "lower bound":
         lo, hi = extra.get("best_sweeps_ci") or (None, None)
-        text += f" at {extra['best_sweeps']:,}" + (f" [{lo:,}-{hi:,}]" if lo is not None and lo != hi else "")
+        text += f" at {extra['best_sweeps']:,}" + (f" ({lo:,}-{hi:,})" if lo is not None and lo != hi else "")
     return text
 
 
@@ -44,7 +44,7 @@ def _cells(entries, solvers, metric) -> list[list[str]]:
         row = []
         for solver in solvers:
             sc = next((s for s in e["scores"] if s["solver"] == solver and s["metric"] == metric), None)
-            row.append(score_text(sc) if sc else "-")
+            row.append(score_text(sc, units=False) if sc else "-")
         rows.append(row)
     return rows
 
@@ -54,16 +54,23 @@ def _widths(groups, solvers) -> list[int]:
     widths = []
     for k, solver in enumerate(solvers):
         cells = [row[k] for entries in groups for row in _cells(entries, solvers, _metric(entries))]
-        head = f"{solver} {_metric([e for g in groups for e in g])}"
+        head = _head(solver, [e for g in groups for e in g])
         widths.append(max([len(head)] + [len(c) for c in cells]))
     return widths
+
+
+def _head(solver, entries) -> str:
+    metric = _metric(entries)
+    units = next((s.get("units") for e in entries for s in e["scores"] if s["metric"] == metric and s.get("units")), "")
+    label = "TTS99" if metric == "tts" else metric
+    return f"{solver} {label}" + (f" ({units})" if units else "")
 
 
 def _table(w, entries, solvers, heads, widths) -> None:
     """One line per instance: optimum, how it is known, the first metric under every solver."""
     metric = _metric(entries)
     w(f"{'#':>2}  {'file':<26} {'optimum':>10}  {'how known':<22}"
-      + "".join(f"  {s + ' ' + metric:<{wd}}" for s, wd in zip(solvers, widths)).rstrip() + "\n")
+      + "".join(f"  {_head(s, entries):<{wd}}" for s, wd in zip(solvers, widths)).rstrip() + "\n")
     for e, head, cells in zip(entries, heads, _cells(entries, solvers, metric)):
         c = e["certificate"]
         line = f"{head} {c['energy']:>10.6g}  {c['method'] + ' (' + c['status'] + ')':<22}"

@@ -45,6 +45,24 @@ def test_tts_output_says_what_was_measured(files, capsys):
     assert "NOT a proven optimum" in out  # nothing planted, nothing certified
 
 
+def test_tts_is_pinned_at_its_optimum_by_default(files, capsys):
+    # TTS99 is quoted at the optimal anneal length, not at the edge of a grid (Albash & Lidar,
+    # PRX 8, 031016 (2018)); the gauged ferromagnet's optimum lies below the 200 sweeps given
+    code, out, _ = run(["score", files["planted"], "--metric", "tts", "--sweeps", "200,400", "--reads", "32",
+                        "--json"], capsys)
+    s = json.loads(out)["scores"][0]
+    assert code == 0 and s["kind"] == "value" and s["extra"]["pin"]["pinned"]
+    assert s["extra"]["best_sweeps"] < 200 and len(s["extra"]["best_sweeps_ci"]) == 2
+    code, out, _ = run(["score", files["planted"], "--metric", "tts", "--sweeps", "200,400", "--reads", "32",
+                        "--fixed-grid", "--json"], capsys)
+    s = json.loads(out)["scores"][0]
+    assert code == 0 and s["kind"] == "upper bound" and "pin" not in s["extra"]
+    assert [r["sweeps"] for r in s["extra"]["per_sweeps"]] == [200, 400]
+    code, out, _ = run(["score", files["planted"], "--metric", "tts", "--sweeps", "200,400", "--reads", "32",
+                        "--budget", "1e5"], capsys)
+    assert code == 0 and "NOT pinned" in out and "budget of 1e+05 spin updates" in out
+
+
 def test_planted_reference_is_not_flagged(files, capsys):
     code, out, _ = run(["score", files["planted"], "--metric", "success", "--sweeps", "200", "--reads", "16"], capsys)
     assert code == 0 and "planted state; planted" in out and "NOT a proven optimum" not in out
@@ -106,7 +124,7 @@ def test_done_criterion_chimera4_tts_under_three_solvers(tmp_path, capsys):
     f = tmp_path / "c4.json"
     assert run(["make", "chimera:4", "--couplings", "pm1", "--seed", "1", "-o", str(f)], capsys)[0] == 0
     code, out, _ = run(["score", str(f), "--metric", "tts", "--solvers", "sa,pimc,tabu", "--sweeps", "10,100,1000",
-                        "--reads", "24", "--seed", "1", "--json"], capsys)
+                        "--reads", "24", "--seed", "1", "--budget", "2e7", "--json"], capsys)
     d = json.loads(out)
     assert code == 0 and [s["solver"] for s in d["scores"]] == ["sa", "pimc", "tabu"]
     for s in d["scores"]:
