@@ -75,8 +75,15 @@ def run(args):
     cfg = resolve(args)
     executor = make_executor(cfg["search"]["workers"], cluster=args.cluster)
     show = Progress(cfg, quiet=args.quiet or args.json, stream=sys.stderr)
+    quiet = args.quiet or args.json
+
+    def say(text):
+        if not quiet:
+            print(f"after the search: {text} ...", file=sys.stderr, flush=True)
+
     with show:
-        summary = breed(cfg, out=cfg["run"]["output"], executor=executor, resume=args.resume, progress=show.update)
+        summary = breed(cfg, out=cfg["run"]["output"], executor=executor, resume=args.resume, progress=show.update,
+                        say=say)
     if not args.no_report:
         from ..report.html import write_report
 

@@ -184,12 +184,16 @@ class Breeder:
                               f"{self.cfg['library']['time_limit']} s; use reference = \"best-found\" or a smaller graph")
         return cert.energy
 
-    def _new_random(self) -> object:
+    def new_genome(self, rng) -> object:
+        """A genome drawn the way the first generation is drawn (random, or planted as the preset says)."""
         if self.kind != "free":
-            return planted_genome(self.kind).random(self.var, self.rng)
-        J = self.rules.sample_couplings(self.topology.m, self.rng)
-        h = self.rules.sample_fields(self.topology.n, self.rng)
+            return planted_genome(self.kind).random(self.var, rng)
+        J = self.rules.sample_couplings(self.topology.m, rng)
+        h = self.rules.sample_fields(self.topology.n, rng)
         return FreeGenome(J, h)
+
+    def _new_random(self) -> object:
+        return self.new_genome(self.rng)
 
     def _individual(self, genome, parents=()) -> Individual:
         J, h, _, _ = genome.couplings()
@@ -415,11 +419,13 @@ def _slim(details: dict) -> dict:
     return json.loads(json.dumps(details, default=float))
 
 
-def breed(cfg: dict, out=None, fitness=None, executor=None, resume: bool = False, progress=None) -> dict:
+def breed(cfg: dict, out=None, fitness=None, executor=None, resume: bool = False, progress=None, say=None) -> dict:
     """Breed instances for a validated preset; the notebook entry point.
 
     Returns the summary (see :func:`instgen.evolve.finish.finish`) after the
     search and the final certification/measurement of the hall of fame.
+    ``progress`` gets each generation's log record, ``say`` one line per step
+    of the work after the search.
     """
     from .finish import finish
 
@@ -430,7 +436,7 @@ def breed(cfg: dict, out=None, fitness=None, executor=None, resume: bool = False
         Library.check_location(cfg["library"]["path"])
     breeder = Breeder(cfg, out, executor=executor, fitness=fitness, progress=progress)
     result = breeder.run(resume=resume)
-    return finish(breeder, result)
+    return finish(breeder, result, say=say)
 
 
 __all__ = ["Breeder", "breed", "SerialExecutor"]

@@ -1,4 +1,4 @@
-"""After the search: certify the hall of fame, measure it honestly, compare with random.
+"""After the search: certify the hall of fame, measure it honestly, compare with two baselines.
 
 For each hall-of-fame entry (up to ``[library] count``):
 
@@ -7,12 +7,20 @@ For each hall-of-fame entry (up to ``[library] count``):
    checked against their construction) — an unproven optimum stays marked
    ``unverified`` everywhere it appears;
 3. measure the run's metric again on fresh seeds, against the certified energy,
-   under the search sampler and every extra solver in ``[fitness] solvers``;
+   under the search sampler and every extra solver in ``[fitness] solvers``
+   (TTS99 pinned at its optimal sweep count);
 4. write it to ``hall_of_fame/`` with its certificate and scores.
 
-The same measurement is made on ``[library] baseline`` random instances of the
-same graph and alphabet, so the summary can say how much harder the winners
-are than what random couplings give — measured in the same run.
+The same measurement is made on ``[library] baseline`` instances of two kinds,
+so the summary can say what breeding added, measured in the same run:
+
+* **random**: random couplings of the same graph and alphabet;
+* **start**: unbred instances drawn the way the search draws its first
+  generation (for planted runs, planted instances of the same family and
+  density; for free runs this is the random baseline itself).
+
+Each comparison is a ratio of medians with a bootstrap interval and a verdict
+that follows the interval (:mod:`instgen.compare`).
 """
 
 from __future__ import annotations
@@ -24,6 +32,7 @@ from pathlib import Path
 
 import numpy as np
 
+from ..compare import EASIER, HARDER, compare_figures
 from ..io import atomic_write, save_instance
 from ..make import make_instance
 from ..preset import preset_hash
@@ -46,12 +55,27 @@ def pinning(cfg) -> Pinning:
                    successes=int(f["pin_successes"]), cold_ends=tuple(float(c) for c in f["cold_ends"]))
 
 
-def _certify(inst, cfg):
+#: Metrics whose figures are measured against the ground-state energy (the anneal gap is not).
+USES_REFERENCE = ("tts", "success", "residual")
+
+
+def _certify(inst, cfg, time_limit=None):
     from ..certify import attach_certificate, certify
 
-    cert = certify(inst, method=cfg["library"]["certify"], time_limit=cfg["library"]["time_limit"],
+    cert = certify(inst, method=cfg["library"]["certify"], time_limit=time_limit or cfg["library"]["time_limit"],
                    seed=derive_seed(cfg["run"]["seed"], "certify"))
     return attach_certificate(inst, cert), cert
+
+
+def _needs_reference(ctx) -> bool:
+    return any(m in USES_REFERENCE for m in _final_metrics(ctx))
+
+
+def _no_certificate():
+    from ..records import Certificate
+
+    return Certificate(math.nan, np.zeros(0, dtype=np.int8), "none", "unverified",
+                       details={"why": "not needed: the run's metric does not use the ground-state energy"})
 
 
 def _measure(inst, cfg, ctx, seed):
@@ -85,15 +109,21 @@ def _median(values):
     return float(np.median(v)) if v else None
 
 
-def finish(breeder, result: dict) -> dict:
-    """Certify, re-measure and write the hall of fame; returns the run summary (also in summary.json)."""
+def finish(breeder, result: dict, say=None) -> dict:
+    """Certify, re-measure and write the hall of fame; returns the run summary (also in summary.json).
+
+    ``say`` (a callable taking one line) hears what each phase is doing.
+    """
+    say = say or (lambda text: None)
     cfg, ctx, out = breeder.cfg, breeder.ctx, breeder.out
     run_id = uuid.uuid5(uuid.NAMESPACE_OID, f"{preset_hash(cfg)}:{out.resolve()}").hex[:12]
     hall_dir = out / "hall_of_fame"
     hall_dir.mkdir(parents=True, exist_ok=True)
     winners = []
     construction = breeder.var.extra.get("construction")
-    for rank, fam in enumerate(breeder.hall[: cfg["library"]["count"]], 1):
+    chosen = breeder.hall[: cfg["library"]["count"]]
+    for rank, fam in enumerate(chosen, 1):
+        say(f"winner {rank} of {len(chosen)}: certifying and measuring on fresh seeds")
         J, h, planted, _ = fam.genome.couplings()
         inst = ctx.instance(J, h, planted)
         meta = {"rules": ctx.rules, "tags": list(cfg["library"]["tags"]),
@@ -115,7 +145,8 @@ def finish(breeder, result: dict) -> dict:
         entry.update(rank=rank, key=fam.key, generation=fam.generation, search_fitness=fam.search_fitness,
                      confirmed_fitness=fam.confirmed)
         winners.append(entry)
-    baseline = _baseline(breeder)
+    baseline = _baseline(breeder, say)
+    start = _start(breeder, say)
     summary = {
         "format": "instgen-run-summary", "format_version": SUMMARY_VERSION,
         "run": {"name": cfg["run"]["name"], "id": run_id, "seed": cfg["run"]["seed"], "graph": ctx.graph,
@@ -125,12 +156,14 @@ def finish(breeder, result: dict) -> dict:
                 "sweeps": list(ctx.sweeps), "beta_range": list(ctx.beta_range), "preset_hash": preset_hash(cfg),
                 "folder": str(out)},
         "stopped": result["stopped"], "generations": result["generations"], "evaluations": result["evaluations"],
-        "elapsed": result["elapsed"], "winners": winners, "baseline": baseline,
+        "elapsed": result["elapsed"], "winners": winners, "baseline": baseline, "start": start,
+        "search_progress": stall(breeder.history),
     }
     summary["measuring"] = {"pinning": pinning(cfg).to_dict(), **measuring_cost(summary)}
-    summary["comparison"] = compare(summary)
+    summary["comparison"] = compare(summary, seed=derive_seed(cfg["run"]["seed"], "comparison"))
     summary["cautions"] = cautions(summary)
     if cfg["library"]["path"] and winners:
+        say(f"filing {len(winners)} winners into the library {cfg['library']['path']}")
         summary["library"] = _file_into_library(cfg, hall_dir, winners)
     atomic_write(out / "summary.json", json.dumps(summary, indent=1, default=_json_default))
     return summary
@@ -142,62 +175,142 @@ def _json_default(o):
     return str(o)
 
 
-def _baseline(breeder) -> dict:
+def _baseline(breeder, say) -> dict:
+    """Random instances of the same graph and alphabet, certified only when the metric needs an optimum."""
     cfg, ctx = breeder.cfg, breeder.ctx
     count = cfg["library"]["baseline"]
     entries = []
+    needed = _needs_reference(ctx)
+    limit = min(cfg["library"]["time_limit"], BASELINE_CERTIFY_SECONDS)
     for k in range(count):
+        say(f"random baseline {k + 1} of {count}: " + ("certifying and measuring" if needed else "measuring"))
         inst = make_instance(breeder.topology, breeder.rules, seed=derive_seed(cfg["run"]["seed"], "baseline", k))
-        inst, cert = _certify(inst, cfg)
+        inst, cert = _certify(inst, cfg, limit) if needed else (inst, _no_certificate())
         scores = _measure(inst, cfg, ctx, derive_seed(cfg["run"]["seed"], "baseline-measure", k))
         entries.append(_entry(inst, cert, scores))
-    return {"count": count, "instances": entries,
+    return {"count": count, "instances": entries, "kind": "random", "certify_seconds": limit if needed else 0,
             "certified": sum(e["certificate"]["status"] in ("planted", "proven") for e in entries)}
 
 
-def _values(entries, metric, solver):
+#: Random baselines are certified within this many seconds each (or the preset's time limit, if lower).
+BASELINE_CERTIFY_SECONDS = 20.0
+
+
+def _start(breeder, say) -> dict:
+    """Unbred instances drawn as the search draws its first generation (planted runs); free runs reuse random."""
+    cfg, ctx = breeder.cfg, breeder.ctx
+    count = cfg["library"]["baseline"]
+    if breeder.kind == "free" or not count:
+        return {"count": 0, "instances": [], "same_as": "baseline" if breeder.kind == "free" else None}
+    rng = np.random.default_rng(derive_seed(cfg["run"]["seed"], "start-baseline"))
+    entries = []
+    for k in range(count):
+        say(f"unbred start {k + 1} of {count}: measuring")
+        genome = breeder.new_genome(rng)
+        J, h, planted, _ = genome.couplings()
+        inst = ctx.instance(J, h, planted)
+        meta = {"rules": ctx.rules}
+        if hasattr(genome, "construction"):
+            meta["construction"] = genome.construction()
+        inst = inst.replace(metadata={**inst.metadata, **meta})
+        inst, cert = _certify(inst, cfg)
+        scores = _measure(inst, cfg, ctx, derive_seed(cfg["run"]["seed"], "start-measure", k))
+        entries.append(_entry(inst, cert, scores))
+    return {"count": count, "instances": entries, "kind": "start",
+            "certified": sum(e["certificate"]["status"] in ("planted", "proven") for e in entries)}
+
+
+def stall(history: list[dict]) -> dict:
+    """Did the search improve on its start?  The generation-0 median against the confirmed best."""
+    if not history:
+        return {"stalled": None}
+    start_median = history[0]["median"]
+    confirmed = [r.get("best_confirmed") for r in history]
+    first = next((i for i, v in enumerate(confirmed) if v is not None), None)
+    last_gain = first
+    for i in range(1 if first is None else first + 1, len(confirmed)):
+        if confirmed[i] is not None and confirmed[i - 1] is not None and confirmed[i] > confirmed[i - 1]:
+            last_gain = i
+    best = confirmed[-1]
+    stalled = first is not None and last_gain == first and len(history) > 2
+    return {"start_median": start_median, "best_confirmed": best, "first_confirmed_generation": first,
+            "last_improvement_generation": last_gain, "stalled": stalled, "generations": len(history)}
+
+
+def _scores_of(entries, metric, solver):
     out = []
     for e in entries:
         for s in e["scores"]:
             if s["metric"] == metric and s["solver"] == solver:
-                out.append(s["value"])
+                out.append(s)
     return out
 
 
-def compare(summary: dict) -> list[dict]:
-    """Median of winners vs median of the random baseline, per metric and solver."""
+def _values(entries, metric, solver):
+    return [s["value"] for s in _scores_of(entries, metric, solver)]
+
+
+def compare(summary: dict, seed: int = 0) -> list[dict]:
+    """The winners against each baseline, per metric and solver: ratio of medians, interval, verdict."""
+    from ..scoring import METRICS
+
     rows = []
-    winners, base = summary["winners"], summary["baseline"]["instances"]
+    winners = summary["winners"]
+    groups = [("random", summary["baseline"]["instances"])]
+    start = summary.get("start") or {}
+    if start.get("instances"):
+        groups.append(("start", start["instances"]))
     metrics = sorted({s["metric"] for e in winners for s in e["scores"]})
     for metric in metrics:
+        harder = METRICS.get(metric).harder if metric in METRICS.names() else "higher"
         for solver in summary["run"]["solvers"]:
-            w, b = _values(winners, metric, solver), _values(base, metric, solver)
-            wm, bm = _median(w), _median(b)
-            ratio = None
-            if wm is not None and bm not in (None, 0) and math.isfinite(wm) and math.isfinite(bm):
-                ratio = wm / bm
-            rows.append({"metric": metric, "solver": solver, "winners_median": wm, "baseline_median": bm,
-                         "ratio": ratio, "winners": len(w), "baseline": len(b)})
+            for against, base in groups:
+                w, b = _scores_of(winners, metric, solver), _scores_of(base, metric, solver)
+                row = compare_figures(w, b, harder, derive_seed(seed, "compare", metric, solver, against))
+                row.update(metric=metric, solver=solver, against=against, harder=harder,
+                           winners_median=row["group_median"], winners=row["group"])
+                rows.append(row)
     return rows
+
+
+def comparison_words(row: dict) -> str:
+    """What a comparison row means, in the words a reader needs."""
+    other = "random instances of the same graph and alphabet" if row["against"] == "random" else \
+        "the unbred start of the search"
+    text = f"{row['metric']} on {row['solver']}, winners against {other}: {row['sentence']}"
+    if row["against"] == "start" and row["verdict"] != HARDER:
+        text += (" — breeding made them easier" if row["verdict"] == EASIER else
+                 " — breeding added nothing measurable")
+    return text
 
 
 def cautions(summary: dict) -> list[str]:
     """Plain-language warnings a reader needs before trusting the figures."""
     out = []
+    uses_reference = any(s["metric"] in USES_REFERENCE for e in summary["winners"] for s in e["scores"])
     unproven = [e["file"] for e in summary["winners"] if e["certificate"]["status"] == "unverified"]
-    if unproven:
+    if unproven and uses_reference:
         out.append(f"{len(unproven)} of {len(summary['winners'])} winners have NO proven optimum (best energy found "
                    "only); their success probabilities and TTS are measured against an energy that may not be the "
                    "ground state.")
     base = summary["baseline"]
-    if base["count"] and base["certified"] < base["count"]:
+    if base["count"] and base["certified"] < base["count"] and uses_reference:
         out.append(f"{base['count'] - base['certified']} of {base['count']} random baseline instances have no proven "
                    "optimum; their figures are measured against the best energy found.")
-    for group, entries in (("winner", summary["winners"]), ("random baseline", summary["baseline"]["instances"])):
+    groups = [("winner", summary["winners"]), ("random baseline", base["instances"]),
+              ("unbred start", (summary.get("start") or {}).get("instances", []))]
+    for group, entries in groups:
         bounds = [s for e in entries for s in e["scores"] if s["kind"] != "value"]
         if bounds:
             out.append(f"{len(bounds)} of {sum(len(e['scores']) for e in entries)} {group} figures are bounds, not "
                        "values: " + "; ".join(sorted({_why_bound(s) for s in bounds})) + ".")
+    for row in summary.get("comparison", []):
+        if row["verdict"] != HARDER:
+            out.append(comparison_words(row) + ".")
+    prog = summary.get("search_progress") or {}
+    if prog.get("stalled"):
+        out.append(f"The search stalled: the confirmed best has not improved since generation "
+                   f"{prog['first_confirmed_generation'] + 1}, its first confirmation.")
     out.append("Hardness was measured on " + ", ".join(summary["run"]["solvers"]) + " only; other solvers may "
                "find these instances easier or harder.")
     if not summary["winners"]:

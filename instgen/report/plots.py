@@ -105,6 +105,9 @@ def fitness_figure(records: list[dict], metric: str, sampler: str = ""):
         ax.plot(g, col("best"), color=PALETTE["blue"], lw=2.0, marker="o", ms=3.5, label="search: best")
         ax.step(g, col("best_confirmed"), where="post", color=PALETTE["vermillion"], lw=2.2,
                 label="confirmed on fresh seeds: best so far")
+        if records and _finite(records[0].get("median")):
+            ax.axhline(conv(records[0]["median"]), color=PALETTE["black"], lw=1.0, ls=":",
+                       label="first generation's median (the unbred start)")
         cx = [gi for gi, r in zip(g, records) for v in r.get("confirmed_this_generation") or [] if _finite(v)]
         cy = [conv(v) for r in records for v in r.get("confirmed_this_generation") or [] if _finite(v)]
         if cx:
@@ -122,20 +125,23 @@ def fitness_figure(records: list[dict], metric: str, sampler: str = ""):
 
 
 def baseline_figure(summary: dict):
-    """Hall of fame against the random baseline: one panel per (metric, solver), CIs as bars."""
+    """Winners against the baselines: one panel per (metric, solver), CIs as bars, the verdicts in the title."""
     rows = summary.get("comparison") or []
-    n = max(len(rows), 1)
+    panels = list(dict.fromkeys((r["metric"], r["solver"]) for r in rows))
+    n = max(len(panels), 1)
     cols = min(n, 3)
+    start = (summary.get("start") or {}).get("instances") or []
+    groups = [("random\n(baseline)", summary["baseline"]["instances"], PALETTE["black"])]
+    if start:
+        groups.append(("unbred\nstart", start, PALETTE["sky"]))
+    groups.append(("winners", summary["winners"], PALETTE["orange"]))
     with _style():
-        fig = _figure(max(6.5, 3.6 * cols), 3.8 * math.ceil(n / cols))
-        for i, row in enumerate(rows):
+        fig = _figure(max(6.5, 3.9 * cols), 4.0 * math.ceil(n / cols))
+        for i, (metric, solver) in enumerate(panels):
             ax = fig.add_subplot(math.ceil(n / cols), cols, i + 1)
             units = ""
-            for x, (group, entries, colour) in enumerate((
-                    ("random", summary["baseline"]["instances"], PALETTE["black"]),
-                    ("hall of fame", summary["winners"], PALETTE["orange"]))):
-                scores = [s for e in entries for s in e["scores"]
-                          if s["metric"] == row["metric"] and s["solver"] == row["solver"]]
+            for x, (label, entries, colour) in enumerate(groups):
+                scores = [s for e in entries for s in e["scores"] if s["metric"] == metric and s["solver"] == solver]
                 units = units or next((s.get("units", "") for s in scores), "")
                 xs = x + np.linspace(-0.18, 0.18, len(scores)) if len(scores) > 1 else np.full(len(scores), x)
                 for xi, s in zip(xs, scores):
@@ -147,20 +153,27 @@ def baseline_figure(summary: dict):
                     mk = BOUND_MARKER.get(s.get("kind", "value"), "o")
                     ax.scatter([xi], [s["value"]], marker=mk, s=30, zorder=3,
                                facecolor=colour if mk == "o" else "white", edgecolor=colour)
-                med = row["baseline_median" if x == 0 else "winners_median"]
-                if _finite(med):
+                vals = [s["value"] for s in scores if _finite(s["value"])]
+                if vals:
+                    med = float(np.median(vals))
                     ax.plot([x - 0.3, x + 0.3], [med, med], color=colour, lw=2.2)
-            ax.set_xticks([0, 1], ["random\n(baseline)", "hall of\nfame"])
-            ax.set_xlim(-0.6, 1.6)
-            if row["metric"] == "tts":
+            ax.set_xticks(range(len(groups)), [g[0] for g in groups])
+            ax.set_xlim(-0.6, len(groups) - 0.4)
+            if metric == "tts":
                 plain_log(ax)
-            ratio = f"median ratio {row['ratio']:.3g}x" if _finite(row.get("ratio")) else "ratio not defined"
-            ax.set_title(f"{row['metric']} on {row['solver']}: {ratio}")
-            ax.set_ylabel(f"{row['metric']} ({units})" if units else row["metric"])
+            words = []
+            for r in rows:
+                if (r["metric"], r["solver"]) == (metric, solver):
+                    ratio = f"{r['ratio']:.2g}x" if _finite(r.get("ratio")) else "no ratio"
+                    words.append(f"vs {'random' if r['against'] == 'random' else 'start'}: {ratio}, {r['verdict']}")
+            label = "TTS99" if metric == "tts" else metric
+            ax.set_title(f"{label} on {solver}\n" + "; ".join(words), fontsize=8)
+            ax.set_ylabel(f"{label} ({units})" if units else label)
             ax.grid(axis="x", visible=False)
-        if not rows:
+        if not panels:
             fig.add_subplot().text(0.5, 0.5, "no comparison in summary.json", ha="center")
-        fig.suptitle("Hall of fame against random instances (same graph and alphabet)", fontsize=10)
+        fig.suptitle("Winners against random instances of the same graph and alphabet"
+                     + (" and the unbred start" if start else ""), fontsize=10)
     return fig
 
 

@@ -107,67 +107,32 @@ def _baseline_table(summary: dict) -> str:
     return table(head, rows, "baseline")
 
 
-def ratio_interval(winners, baseline, seed, draws: int = 2000, confidence: float = 0.95):
-    """Percentile bootstrap interval of median(winners) / median(baseline), resampling instances.
-
-    None when either group has fewer than two finite values or a resampled
-    baseline median can be zero.
-    """
-    import numpy as np
-
-    from ..seeds import as_generator
-
-    w = np.array([v for v in winners if isinstance(v, (int, float)) and math.isfinite(v)], dtype=float)
-    b = np.array([v for v in baseline if isinstance(v, (int, float)) and math.isfinite(v)], dtype=float)
-    if w.size < 2 or b.size < 2 or np.any(b == 0):
-        return None
-    rng = as_generator(seed)
-    rw = np.median(w[rng.integers(0, w.size, (draws, w.size))], axis=1)
-    rb = np.median(b[rng.integers(0, b.size, (draws, b.size))], axis=1)
-    lo, hi = np.quantile(rw / rb, [(1 - confidence) / 2, (1 + confidence) / 2])
-    return float(lo), float(hi)
+def _stall_words(prog: dict) -> str:
+    if prog.get("stalled"):
+        return (f"The search stalled: the confirmed best has not improved since generation "
+                f"{prog['first_confirmed_generation'] + 1}, its first confirmation.")
+    if prog.get("last_improvement_generation") is not None:
+        return f"The confirmed best last improved in generation {prog['last_improvement_generation'] + 1}."
+    return ""
 
 
-def _values(entries, metric, solver):
-    return [s["value"] for e in entries for s in e["scores"] if s["metric"] == metric and s["solver"] == solver]
-
-
-def ratio_intervals(summary: dict, seed: int) -> list:
-    """The bootstrap interval of each comparison row's ratio (None where it cannot be formed)."""
-    return [ratio_interval(_values(summary["winners"], r["metric"], r["solver"]),
-                           _values(summary["baseline"]["instances"], r["metric"], r["solver"]),
-                           derive_seed(seed, "report-ratio", r["metric"], r["solver"]))
-            for r in summary["comparison"]]
-
-
-def ratio_cautions(summary: dict, intervals) -> list[str]:
-    """Plain words where the hall of fame is not clearly harder than random instances."""
-    from ..scoring import METRICS
-
-    out = []
-    for r, ci in zip(summary["comparison"], intervals):
-        if ci is None:
-            continue
-        harder = METRICS.get(r["metric"]).harder if r["metric"] in METRICS.names() else "higher"
-        clear = ci[0] > 1 if harder == "higher" else ci[1] < 1
-        if not clear:
-            out.append(f"{r['metric']} on {r['solver']}: the 95% interval of the hall-of-fame / random ratio "
-                       f"({ci[0]:.3g} to {ci[1]:.3g}) does not exclude 1, so the winners are not clearly harder "
-                       "than random instances on this measure.")
-    return out
-
-
-def _comparison_table(summary: dict, intervals) -> str:
+def _comparison_table(summary: dict) -> str:
     rows = []
-    for r, ci in zip(summary["comparison"], intervals):
-        rows.append([text_cell(r["metric"]), text_cell(r["solver"]), num_cell(r["winners_median"]),
-                     num_cell(r["baseline_median"]), num_cell(r["ratio"], 3),
+    for r in summary["comparison"]:
+        ci = r.get("ratio_ci")
+        sign = {"lower bound": "≥ ", "upper bound": "≤ "}.get(r.get("ratio_kind"), "")
+        rows.append([text_cell(r["metric"]), text_cell(r["solver"]),
+                     text_cell("random, same graph and alphabet" if r["against"] == "random" else "unbred start"),
+                     num_cell(r["winners_median"]), num_cell(r["baseline_median"]),
+                     text_cell("–" if r["ratio"] is None else f"{sign}{fmt(r['ratio'], 3)}"),
                      text_cell("–" if ci is None else f"{fmt(ci[0], 3)} to {fmt(ci[1], 3)}"),
-                     num_cell(r["winners"]), num_cell(r["baseline"])])
-    return table(["metric", "solver", "hall of fame median", "random median", "ratio (hall of fame / random)",
-                  "ratio, 95% interval", "hall of fame instances", "random instances"], rows, "comparison") + (
+                     text_cell(r["verdict"]), num_cell(r["winners"]), num_cell(r["baseline"])])
+    return table(["metric", "solver", "against", "winners median", "baseline median", "ratio (winners / baseline)",
+                  "ratio, 95% interval", "winners are", "winners", "baseline instances"], rows, "comparison") + (
         '<p class="note">The interval resamples the instances of each group (bootstrap of the ratio of medians); '
-        "with few instances it is wide. Bounds enter as if they were values.</p>")
+        "with few instances it is wide. The verdict follows the interval: harder or easier only when it excludes "
+        "1. A ratio is formed only from values, or from bounds that all point one way (then the ratio is a bound "
+        "too and supports a verdict only in its own direction).</p>")
 
 
 SETTING_NAMES = {"name": "run name", "id": "run id", "seed": "run seed", "graph": "graph", "n": "spins",
@@ -240,21 +205,24 @@ def run_page(folder: Path, *, reads: int, profiles: int, profile_reads: int, pro
             f"({esc(summary['stopped'])}), {summary['evaluations']} evaluations in {fmt(summary['elapsed'], 3)} s. "
             f"Winners are re-measured on fresh seeds against their certified energy.")
     if summary["comparison"]:
-        intervals = ratio_intervals(summary, seed)
-        notes += ratio_cautions(summary, intervals)
-        sections.append("<h2>How much harder than random instances</h2>" + _comparison_table(summary, intervals))
+        start = summary.get("start") or {}
+        sections.append("<h2>What breeding added</h2>" + _comparison_table(summary))
         sections.append(figure(_save(plots.baseline_figure(summary), folder, "baseline.png"),
-                               "hall of fame against random baseline",
+                               "winners against the baselines",
                                f"Each dot is one instance measured in this run; bars are confidence intervals, "
                                f"the thick line the median, open triangles bounds rather than values. Random "
-                               f"instances: {summary['baseline']['count']} of the same graph and alphabet."))
+                               f"instances: {summary['baseline']['count']} of the same graph and alphabet"
+                               + (f"; unbred start: {start['count']} drawn as the search's first generation."
+                                  if start.get("instances") else
+                                  " (for a free search these are also its unbred start).")))
     if records:
         sections.append("<h2>Fitness by generation</h2>" + figure(
             _save(plots.fitness_figure(records, run["metric"], run["sampler"]), folder, "fitness.png"),
             "fitness by generation",
             "Search fitness (blue) is measured with few reads and pooled over generations, so it is noisy and "
             "optimistic; confirmed fitness (red-orange steps and diamonds) is measured again on fresh seeds and "
-            "decides the hall of fame."))
+            "decides the hall of fame. The dotted line is the first generation's median: the unbred start. "
+            + _stall_words(summary.get("search_progress") or {})))
     else:
         notes.append("log.jsonl is missing or empty, so there is no fitness-by-generation plot.")
     sections.append("<h2>Winners and their certificates</h2>" + (_winners_table(summary) + BOUND_NOTE if winners else

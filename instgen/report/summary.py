@@ -73,7 +73,10 @@ def _table(w, entries, solvers, heads, widths) -> None:
       + "".join(f"  {_head(s, entries):<{wd}}" for s, wd in zip(solvers, widths)).rstrip() + "\n")
     for e, head, cells in zip(entries, heads, _cells(entries, solvers, metric)):
         c = e["certificate"]
-        line = f"{head} {c['energy']:>10.6g}  {c['method'] + ' (' + c['status'] + ')':<22}"
+        if c["method"] == "none":
+            line = f"{head} {'-':>10}  {'not needed':<22}"
+        else:
+            line = f"{head} {c['energy']:>10.6g}  {c['method'] + ' (' + c['status'] + ')':<22}"
         line += "".join(f"  {text:<{wd}}" for text, wd in zip(cells, widths))
         w(line.rstrip() + "\n")
 
@@ -100,7 +103,8 @@ def print_summary(summary: dict, stream=None) -> None:
     w("\n")
     winners = summary["winners"]
     base = summary["baseline"]
-    widths = _widths([winners, base["instances"]], run["solvers"])
+    widths = _widths([winners, base["instances"], (summary.get("start") or {}).get("instances", [])],
+                     run["solvers"])
     if winners:
         _table(w, winners, run["solvers"], [f"{e['rank']:>2}  {e['file']:<26}" for e in winners], widths)
         planted = [e for e in winners if e.get("planted_energy") is not None]
@@ -113,18 +117,29 @@ def print_summary(summary: dict, stream=None) -> None:
         w(f"\nrandom baseline ({base['count']} instances of the same graph and alphabet, same run and settings):\n")
         _table(w, base["instances"], run["solvers"], [f"{'r' + str(k):>2}  {'(not kept)':<26}"
                                                       for k in range(1, len(base["instances"]) + 1)], widths)
-        if base["certified"] < base["count"]:
+        if any(e["certificate"]["method"] == "none" for e in base["instances"]):
+            w("note: the run's metric does not use the ground-state energy, so the baseline was not certified.\n")
+        elif base["certified"] < base["count"]:
             w(f"note: {base['count'] - base['certified']} of {base['count']} baseline reference energies are NOT "
               "certified (lowest energy found, not a proof); a lower state would make those instances harder "
               "than shown.\n")
         else:
             w("note: every baseline reference energy is certified.\n")
+    start = summary.get("start") or {}
+    if start.get("instances"):
+        w(f"\nunbred start ({start['count']} instances drawn as the search's first generation is drawn, same "
+          "run and settings):\n")
+        _table(w, start["instances"], run["solvers"], [f"{'s' + str(k):>2}  {'(not kept)':<26}"
+                                                       for k in range(1, len(start["instances"]) + 1)], widths)
     if summary["comparison"]:
-        w(f"\nagainst {summary['baseline']['count']} random instances of the same graph and alphabet, same run:\n")
+        w("\nwhat breeding added (median of the winners / median of the baseline, 95% bootstrap interval over "
+          "instances):\n")
         for r in summary["comparison"]:
-            ratio = "-" if r["ratio"] is None else f"{r['ratio']:.3g}x"
-            w(f"  {r['metric']:<10} {r['solver']:<8} winners median {_num(r['winners_median'])}, random median "
-              f"{_num(r['baseline_median'])}  -> {ratio}\n")
+            other = "random" if r["against"] == "random" else "unbred start"
+            w(f"  {r['metric']:<8} {r['solver']:<9} vs {other:<12} winners {_num(r['winners_median'])}, "
+              f"baseline {_num(r['baseline_median'])}: {r['sentence']}\n")
+        if start.get("same_as") == "baseline":
+            w("  (a free search starts from random instances: the random baseline is also its unbred start)\n")
     if summary.get("library"):
         lib = summary["library"]
         w(f"\nfiled {lib['filed']} winners into the library {lib['path']} ({lib['new']} new)\n")
