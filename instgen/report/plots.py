@@ -221,7 +221,7 @@ def sweeps_figure(curves: list[dict], solver: str):
         a.set_title(f"Time-to-solution on {solver}\n(star: optimum; open star or triangle: only a bound)")
         a.legend(frameon=False, loc="best")
         if b is not None:
-            b.set_ylabel("residual energy per spin (energy units)")
+            b.set_ylabel("residual energy per spin / coupling scale")
             b.set_title(f"Residual energy above the reference on {solver}")
     return fig
 
