@@ -158,6 +158,8 @@ def finish(breeder, result: dict, say=None) -> dict:
         "stopped": result["stopped"], "generations": result["generations"], "evaluations": result["evaluations"],
         "elapsed": result["elapsed"], "winners": winners, "baseline": baseline, "start": start,
         "search_progress": stall(breeder.history),
+        "asked": {"count": cfg["library"]["count"], "hall_of_fame": cfg["search"]["hall_of_fame"],
+                  "confirmed": len(breeder.confirmed_keys), "kept": len(breeder.hall)},
     }
     summary["measuring"] = {"pinning": pinning(cfg).to_dict(), **measuring_cost(summary)}
     summary["comparison"] = compare(summary, seed=derive_seed(cfg["run"]["seed"], "comparison"))
@@ -315,6 +317,13 @@ def cautions(summary: dict) -> list[str]:
                "find these instances easier or harder.")
     if not summary["winners"]:
         out.append("The hall of fame is empty: no candidate was confirmed on fresh seeds.")
+    asked = summary.get("asked") or {}
+    if asked and 0 < len(summary["winners"]) < asked["count"]:
+        why = (f"[search] hall_of_fame keeps only {asked['hall_of_fame']}" if asked["hall_of_fame"] < asked["count"]
+               else f"only {asked['confirmed']} candidates were confirmed ([search] confirm_top per generation "
+                    "times the generations run), and gauge-equivalent ones count once")
+        out.append(f"[library] count asked for {asked['count']} winners, but there are {len(summary['winners'])}: "
+                   f"{why}.")
     return out
 
 

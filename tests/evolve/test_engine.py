@@ -136,3 +136,12 @@ def test_confirmation_against_a_proven_optimum(tmp_path):
         J, h, _, _ = fam.genome.couplings()
         exact = dimod.ExactSolver().sample(br.ctx.instance(J, h).to_bqm()).first.energy
         assert fam.details["reference"] == pytest.approx(exact)
+
+
+def test_fewer_winners_than_asked_is_said(tmp_path):
+    from instgen.evolve.engine import breed
+
+    cfg = tiny(search__generations=2, search__hall_of_fame=2, library__count=5)
+    summary = breed(cfg, out=tmp_path / "few")
+    assert len(summary["winners"]) <= 2
+    assert any("asked for 5 winners" in c and "hall_of_fame keeps only 2" in c for c in summary["cautions"])
