@@ -151,6 +151,9 @@ SCHEMA: dict[str, dict[str, tuple]] = {
 
 REFERENCES = ("auto", "planted", "certified", "confirm-certified", "best-found")
 
+#: Keys that may also be written as text, e.g. precision = "1/3" (read with couplings.parse_number).
+NUMBER_TEXT = {("couplings", "range"), ("couplings", "field_range"), ("couplings", "precision")}
+
 
 def defaults() -> dict:
     return {table: {k: copy.deepcopy(v[1]) for k, v in keys.items()} for table, keys in SCHEMA.items()}
@@ -161,6 +164,13 @@ def _check_value(table, key, value):
     where = f"[{table}] {key}"
     if value is None:
         return None
+    if (table, key) in NUMBER_TEXT and isinstance(value, str):
+        from .couplings import parse_number
+
+        try:
+            value = parse_number(value, where)
+        except InstgenError as exc:
+            raise ConfigError(str(exc)) from None
     if isinstance(value, bool) or not isinstance(value, types):
         words = {int: "whole number", float: "number", str: "string", list: "list", dict: "table"}
         names = words[types] if isinstance(types, type) else "number"

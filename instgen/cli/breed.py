@@ -5,7 +5,7 @@ from __future__ import annotations
 import sys
 
 from ..preset import load_preset, override
-from ._common import add_json, nonneg_int, positive_int, print_json
+from ._common import add_json, nonneg_int, number, positive_int, print_json
 
 NAME = "breed"
 ORDER = 10
@@ -15,7 +15,7 @@ on fresh seeds, certify their ground states and write a run folder:
 
   instgen breed presets/demo.toml
   instgen breed presets/quench-study.toml --graph "chimera:6;dead-nodes=5;fault-seed=3" \\
-      --couplings levels:-1,-0.6667,-0.3333,0.3333,0.6667,1 --precision 0.3333333333333333
+      --couplings levels:-1,-2/3,-1/3,1/3,2/3,1 --precision 1/3
   instgen breed presets/demo.toml --out outputs/demo --resume      # continue a killed run
 
 Any preset value can be overridden with --set table.key=value (TOML syntax).
@@ -29,8 +29,10 @@ def add_arguments(p):
     p.add_argument("--graph", metavar="SPEC", help="graph spec (overrides [graph] spec)")
     p.add_argument("--couplings", metavar="ALPHABET", help="coupling alphabet (overrides [couplings] alphabet)")
     p.add_argument("--fields", metavar="ALPHABET", help="field alphabet or none")
-    p.add_argument("--range", type=float, dest="coupling_range", metavar="R", help="coupling range |J| <= R")
-    p.add_argument("--precision", type=float, metavar="STEP", help="coupling precision (step)")
+    p.add_argument("--range", type=number, dest="coupling_range", metavar="R", help="coupling range |J| <= R")
+    p.add_argument("--precision", type=number, metavar="STEP",
+                   help="coupling precision (step), a number or a fraction such as 1/3; levels within 0.5%% of a "
+                        "step from its multiples are snapped to them")
     p.add_argument("--generations", type=positive_int, metavar="N", help="stop after N generations")
     p.add_argument("--population", type=positive_int, metavar="N", help="population size")
     p.add_argument("--workers", type=nonneg_int, metavar="N", help="worker processes (1: serial; 0: all cores)")
