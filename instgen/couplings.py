@@ -338,6 +338,25 @@ class CouplingRules:
     def from_dict(cls, d: dict) -> CouplingRules:
         return cls.make(**d)
 
+    @classmethod
+    def of_weights(cls, weights, cap: float | None = None) -> CouplingRules:
+        """The rules of couplings that are sums of terms of magnitudes ``weights`` (planted families).
+
+        The alphabet is the weights with both signs (``pm1`` for weight 1, ``int:K`` for 1..K);
+        the range is the cap on accumulated |J|, when there is one.
+
+        >>> CouplingRules.of_weights([1, 2, 3], cap=3).to_dict()["couplings"], CouplingRules.of_weights([1]).scale
+        ('int:3', 1.0)
+        """
+        mags = sorted({abs(float(w)) for w in weights if w and (cap is None or abs(w) <= cap * (1 + 1e-12))})
+        if not mags:
+            raise InputError("a planted construction needs at least one weight within its cap")
+        if mags == [float(k) for k in range(1, len(mags) + 1)]:
+            alpha = "pm1" if len(mags) == 1 else f"int:{len(mags)}"
+        else:
+            alpha = Alphabet.of_levels([-w for w in mags] + mags)
+        return cls.make(alpha, "none", coupling_range=cap)
+
 
 def _on_grid(alpha: Alphabet, step: float, what: str) -> Alphabet:
     """A discrete alphabet with its values snapped to multiples of ``step``; refused when a value is far off."""
