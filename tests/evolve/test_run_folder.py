@@ -35,3 +35,74 @@ def test_hall_of_fame_files_are_named_by_the_library_fingerprint(tmp_path):
     assert all(len(i) == 12 for i in ids)
     assert ids == sorted(fp[:12] for fp in fingerprints)
     assert [int(name[:2]) for name in names] == list(range(1, len(names) + 1))
+
+
+# ------------------------------------------------------------------ resuming
+PRESET = """[run]
+seed = 4
+output = "{out}"
+[graph]
+spec = "chimera:1"
+[fitness]
+sampler = "sa"
+sweeps = [5, 50]
+reads = 16
+confirm_reads = 32
+[search]
+population = 6
+generations = 1
+elites = 1
+workers = 1
+[library]
+baseline = 0
+count = 2
+time_limit = 5
+"""
+
+
+def run(argv, capsys):
+    from instgen.cli import main
+
+    try:
+        code = main([str(a) for a in argv])
+    except SystemExit as exc:
+        code = exc.code
+    out = capsys.readouterr()
+    return code, out.out, out.err
+
+
+def _started(tmp_path, capsys):
+    preset = tmp_path / "p.toml"
+    preset.write_text(PRESET.format(out=tmp_path / "default"))
+    out = tmp_path / "A" / "run"
+    code, _, err = run(["breed", preset, "--out", out, "--graph", "chimera:2", "--quiet", "--no-report"], capsys)
+    assert code == 0, err
+    return preset, out
+
+
+def test_resume_with_other_settings_names_them_and_the_run_folders_preset(tmp_path, capsys):
+    preset, out = _started(tmp_path, capsys)
+    code, _, err = run(["breed", preset, "--out", out, "--resume", "--generations", "2", "--quiet", "--no-report",
+                        "--set", "fitness.reads=8"], capsys)
+    assert code == 2 and err.count("\n") == 1
+    assert '[graph] spec was "chimera:2", now "chimera:1"' in err and "[fitness] reads was 16, now 8" in err
+    assert f"{out / 'preset.toml'} --out {out} --resume" in err
+    # the run folder's own preset.toml resumes it, and so does the original preset with the same flags
+    assert run(["breed", out / "preset.toml", "--out", out, "--resume", "--generations", "2", "--quiet",
+                "--no-report"], capsys)[0] == 0
+    assert run(["breed", preset, "--out", out, "--graph", "chimera:2", "--resume", "--generations", "3",
+                "--quiet", "--no-report"], capsys)[0] == 0
+    # (Python's json reads the log: one line per generation, three in all)
+    assert len((out / "log.jsonl").read_text().splitlines()) == 3
+
+
+def test_an_older_checkpoint_without_settings_still_names_the_difference(tmp_path, capsys):
+    preset, out = _started(tmp_path, capsys)
+    doc = json.loads((out / "checkpoint.json").read_text())
+    del doc["settings"]  # as checkpoints were written before they stored their settings
+    (out / "checkpoint.json").write_text(json.dumps(doc))
+    code, _, err = run(["breed", preset, "--out", out, "--resume", "--generations", "2", "--quiet", "--no-report"],
+                       capsys)
+    assert code == 2 and '[graph] spec was "chimera:2", now "chimera:1"' in err
+    assert run(["breed", preset, "--out", out, "--graph", "chimera:2", "--resume", "--generations", "2", "--quiet",
+                "--no-report"], capsys)[0] == 0
