@@ -308,6 +308,31 @@ def override(cfg: dict, assignments) -> dict:
     return validate(raw, "overrides")
 
 
+def with_output(cfg: dict, out) -> dict:
+    """``cfg`` with its run folder moved to ``out``; a ``[library] path`` that lies inside the
+    preset's own ``[run] output`` folder moves along, to the same place inside ``out``.
+
+    >>> cfg = validate({"run": {"output": "outputs/demo"}, "library": {"path": "outputs/demo/library"}})
+    >>> with_output(cfg, "A/run")["library"]["path"]
+    'A/run/library'
+    >>> with_output(validate({"library": {"path": "shared/lib"}}), "A/run")["library"]["path"]
+    'shared/lib'
+    """
+    import os
+
+    new = copy.deepcopy(cfg)
+    new["run"]["output"] = str(out)
+    library = cfg["library"]["path"]
+    if library:
+        try:
+            inner = Path(os.path.abspath(library)).relative_to(os.path.abspath(cfg["run"]["output"]))
+        except ValueError:  # elsewhere: a library shared between runs stays where the preset says
+            inner = None
+        if inner is not None:
+            new["library"]["path"] = str(Path(out) / inner)
+    return validate(new, "--out")
+
+
 def preset_hash(cfg: dict) -> str:
     """A short hash of the resolved preset (what decides the run's results)."""
     blob = json.dumps(cfg, sort_keys=True, default=str).encode()

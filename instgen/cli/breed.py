@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import sys
 
-from ..preset import load_preset, override
+from ..preset import load_preset, override, with_output
 from ._common import add_json, nonneg_int, number, positive_int, print_json
 
 NAME = "breed"
@@ -24,7 +24,9 @@ Any preset value can be overridden with --set table.key=value (TOML syntax).
 
 def add_arguments(p):
     p.add_argument("preset", help="preset file (TOML)")
-    p.add_argument("--out", metavar="DIR", help="run folder (default: the preset's [run] output)")
+    p.add_argument("--out", metavar="DIR",
+                   help="run folder (default: the preset's [run] output); a [library] path inside the preset's "
+                        "own output folder moves along, to the same place inside DIR")
     p.add_argument("--seed", type=nonneg_int, help="run seed (overrides [run] seed)")
     p.add_argument("--graph", metavar="SPEC", help="graph spec (overrides [graph] spec)")
     p.add_argument("--couplings", metavar="ALPHABET", help="coupling alphabet (overrides [couplings] alphabet)")
@@ -50,12 +52,13 @@ def add_arguments(p):
 def resolve(args) -> dict:
     """The preset with the command line's overrides applied."""
     cfg = load_preset(args.preset)
+    if args.out is not None:  # before the flags, so that --library and --set library.path win
+        cfg = with_output(cfg, args.out)
     sets = list(args.set)
     flags = {"run.seed": args.seed, "graph.spec": args.graph, "couplings.alphabet": args.couplings,
              "couplings.fields": args.fields, "couplings.range": args.coupling_range,
              "couplings.precision": args.precision, "search.generations": args.generations,
-             "search.population": args.population, "search.workers": args.workers, "library.path": args.library,
-             "run.output": args.out}
+             "search.population": args.population, "search.workers": args.workers, "library.path": args.library}
     for key, val in flags.items():
         if val is not None:
             sets.append(f"{key}={_toml(val)}")

@@ -106,3 +106,43 @@ def test_an_older_checkpoint_without_settings_still_names_the_difference(tmp_pat
     assert code == 2 and '[graph] spec was "chimera:2", now "chimera:1"' in err
     assert run(["breed", preset, "--out", out, "--graph", "chimera:2", "--resume", "--generations", "2", "--quiet",
                 "--no-report"], capsys)[0] == 0
+
+
+# ------------------------------------------------------------------ --out and the library
+def _preset_with_library(tmp_path, library):
+    text = PRESET.format(out="outputs/chip") + f'path = "{library}"\n'
+    (tmp_path / "p.toml").write_text(text)
+    return tmp_path / "p.toml"
+
+
+def _is_library(folder) -> bool:
+    # the library's index, opened with Python's sqlite3: it holds the entries table
+    with sqlite3.connect(folder / "index.sqlite") as db:
+        return db.execute("SELECT count(*) FROM entries").fetchone()[0] >= 1
+
+
+def test_out_moves_a_library_kept_inside_the_presets_run_folder(tmp_path, capsys, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    preset = _preset_with_library(tmp_path, "outputs/chip/library")
+    code, _, err = run(["breed", preset, "--out", "A/run", "--quiet", "--no-report"], capsys)
+    assert code == 0, err
+    assert _is_library(tmp_path / "A" / "run" / "library") and not (tmp_path / "outputs").exists()
+    summary = json.loads((tmp_path / "A" / "run" / "summary.json").read_text())
+    assert summary["library"]["path"] == "A/run/library"
+
+
+def test_out_leaves_a_library_outside_the_run_folder_and_an_explicit_library_where_they_are(tmp_path, capsys,
+                                                                                            monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    preset = _preset_with_library(tmp_path, "shared/lib")
+    assert run(["breed", preset, "--out", "A/run", "--quiet", "--no-report"], capsys)[0] == 0
+    assert _is_library(tmp_path / "shared" / "lib") and not (tmp_path / "A" / "run" / "library").exists()
+    preset = _preset_with_library(tmp_path, "outputs/chip/library")
+    assert run(["breed", preset, "--out", "B/run", "--library", "outputs/chip/library", "--quiet", "--no-report"],
+               capsys)[0] == 0
+    assert _is_library(tmp_path / "outputs" / "chip" / "library") and not (tmp_path / "B" / "run" / "library").exists()
+
+
+def test_breed_help_says_where_the_library_goes_with_out(capsys):
+    code, out, _ = run(["breed", "--help"], capsys)
+    assert code == 0 and "[library] path inside the preset's" in " ".join(out.split())
