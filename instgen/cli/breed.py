@@ -78,7 +78,8 @@ def run(args):
     from ..report.summary import print_summary
 
     cfg = resolve(args)
-    executor = make_executor(cfg["search"]["workers"], cluster=args.cluster)
+    quiet = (lambda line: None) if args.quiet else None  # --quiet: errors only
+    executor = make_executor(cfg["search"]["workers"], cluster=args.cluster, notify=quiet)
     show = Progress(cfg, quiet=args.quiet or args.json, stream=sys.stderr)
     with show:
         summary = breed(cfg, out=cfg["run"]["output"], executor=executor, resume=args.resume, progress=show.update)
