@@ -465,13 +465,11 @@ def breed(cfg: dict, out=None, fitness=None, executor=None, resume: bool = False
 
     Returns the summary (see :func:`instgen.evolve.finish.finish`) after the
     search and the final certification/measurement of the hall of fame.
-    ``out`` replaces the preset's ``[run] output``; a ``[library] path`` inside
-    that folder moves along (:func:`instgen.preset.with_output`).
     """
     from ..preset import with_output
     from .finish import finish
 
-    if out is not None:  # the run folder, and a library kept inside it, move to ``out``
+    if out is not None:  # out replaces [run] output; a [library] path inside that folder moves along
         cfg = with_output(cfg, out)
     out = Path(cfg["run"]["output"])
     if cfg["library"]["path"]:  # the winners are filed at the end: a wrong folder is named before the run
