@@ -6,7 +6,7 @@ VENV   := .venv
 PY     := $(VENV)/bin/python
 STAMP  := $(VENV)/.installed
 
-.PHONY: demo test test-all bench clean
+.PHONY: demo test test-fast browser bench clean
 
 $(STAMP): pyproject.toml
 	$(PYTHON) -m venv $(VENV)
@@ -19,11 +19,15 @@ demo: $(STAMP)
 	@echo
 	@echo "Open outputs/demo/report.html in a browser to see the run."
 
-test: $(STAMP)
+test: $(STAMP) browser
 	$(PY) -m pytest -q
 
-test-fast: $(STAMP)
+test-fast: $(STAMP) browser
 	$(PY) -m pytest -q -m "not slow"
+
+# headless Chromium for the 2 browser tests (apt-get install chromium when it is missing)
+browser:
+	@bash .ci/browser
 
 bench: $(STAMP)
 	$(PY) -m benchmarks

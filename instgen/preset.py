@@ -161,6 +161,9 @@ SCHEMA: dict[str, dict[str, tuple]] = {
 
 REFERENCES = ("auto", "planted", "certified", "confirm-certified", "best-found")
 
+#: Keys that may also be written as text, e.g. precision = "1/3" (read with couplings.parse_number).
+NUMBER_TEXT = {("couplings", "range"), ("couplings", "field_range"), ("couplings", "precision")}
+
 
 def defaults() -> dict:
     return {table: {k: copy.deepcopy(v[1]) for k, v in keys.items()} for table, keys in SCHEMA.items()}
@@ -171,6 +174,13 @@ def _check_value(table, key, value):
     where = f"[{table}] {key}"
     if value is None:
         return None
+    if (table, key) in NUMBER_TEXT and isinstance(value, str):
+        from .couplings import parse_number
+
+        try:
+            value = parse_number(value, where)
+        except InstgenError as exc:
+            raise ConfigError(str(exc)) from None
     if isinstance(value, bool) or not isinstance(value, types):
         words = {int: "whole number", float: "number", str: "string", list: "list", dict: "table"}
         names = words[types] if isinstance(types, type) else "number"
@@ -306,6 +316,31 @@ def override(cfg: dict, assignments) -> dict:
             raise ConfigError(f"override {item!r} must look like table.key=value, e.g. search.generations=5")
         raw.setdefault(table, {})[name] = _parse_override_value(text.strip())
     return validate(raw, "overrides")
+
+
+def with_output(cfg: dict, out) -> dict:
+    """``cfg`` with its run folder moved to ``out``; a ``[library] path`` that lies inside the
+    preset's own ``[run] output`` folder moves along, to the same place inside ``out``.
+
+    >>> cfg = validate({"run": {"output": "outputs/demo"}, "library": {"path": "outputs/demo/library"}})
+    >>> with_output(cfg, "A/run")["library"]["path"]
+    'A/run/library'
+    >>> with_output(validate({"library": {"path": "shared/lib"}}), "A/run")["library"]["path"]
+    'shared/lib'
+    """
+    import os
+
+    new = copy.deepcopy(cfg)
+    new["run"]["output"] = str(out)
+    library = cfg["library"]["path"]
+    if library:
+        try:
+            inner = Path(os.path.abspath(library)).relative_to(os.path.abspath(cfg["run"]["output"]))
+        except ValueError:  # elsewhere: a library shared between runs stays where the preset says
+            inner = None
+        if inner is not None:
+            new["library"]["path"] = str(Path(out) / inner)
+    return validate(new, "--out")
 
 
 def preset_hash(cfg: dict) -> str:

@@ -42,6 +42,19 @@ def positive_int(text):
     return v
 
 
+def number(text):
+    """A number or a fraction (``0.25``, ``1/3``) for argparse."""
+    import argparse
+
+    from ..couplings import parse_number
+    from ..errors import InputError
+
+    try:
+        return parse_number(text, check=False)  # sizes are checked, with the option's name, by the API
+    except InputError:
+        raise argparse.ArgumentTypeError(f"expected a number or a fraction such as 1/3, got {text!r}") from None
+
+
 def int_list(text):
     """'10,100,1000' -> [10, 100, 1000]."""
     import argparse

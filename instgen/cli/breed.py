@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import sys
 
-from ..preset import load_preset, override
-from ._common import add_json, nonneg_int, positive_int, print_json
+from ..preset import load_preset, override, with_output
+from ._common import add_json, nonneg_int, number, positive_int, print_json
 
 NAME = "breed"
 ORDER = 10
@@ -15,7 +15,7 @@ on fresh seeds, certify their ground states and write a run folder:
 
   instgen breed presets/demo.toml
   instgen breed presets/quench-study.toml --graph "chimera:6;dead-nodes=5;fault-seed=3" \\
-      --couplings levels:-1,-0.6667,-0.3333,0.3333,0.6667,1 --precision 0.3333333333333333
+      --couplings levels:-1,-2/3,-1/3,1/3,2/3,1 --precision 1/3
   instgen breed presets/demo.toml --out outputs/demo --resume      # continue a killed run
 
 Any preset value can be overridden with --set table.key=value (TOML syntax).
@@ -24,13 +24,17 @@ Any preset value can be overridden with --set table.key=value (TOML syntax).
 
 def add_arguments(p):
     p.add_argument("preset", help="preset file (TOML)")
-    p.add_argument("--out", metavar="DIR", help="run folder (default: the preset's [run] output)")
+    p.add_argument("--out", metavar="DIR",
+                   help="run folder (default: the preset's [run] output); a [library] path inside the preset's "
+                        "own output folder moves along, to the same place inside DIR")
     p.add_argument("--seed", type=nonneg_int, help="run seed (overrides [run] seed)")
     p.add_argument("--graph", metavar="SPEC", help="graph spec (overrides [graph] spec)")
     p.add_argument("--couplings", metavar="ALPHABET", help="coupling alphabet (overrides [couplings] alphabet)")
     p.add_argument("--fields", metavar="ALPHABET", help="field alphabet or none")
-    p.add_argument("--range", type=float, dest="coupling_range", metavar="R", help="coupling range |J| <= R")
-    p.add_argument("--precision", type=float, metavar="STEP", help="coupling precision (step)")
+    p.add_argument("--range", type=number, dest="coupling_range", metavar="R", help="coupling range |J| <= R")
+    p.add_argument("--precision", type=number, metavar="STEP",
+                   help="coupling precision (step), a number or a fraction such as 1/3; levels within 0.5%% of a "
+                        "step from its multiples are snapped to them")
     p.add_argument("--generations", type=positive_int, metavar="N", help="stop after N generations")
     p.add_argument("--population", type=positive_int, metavar="N", help="population size")
     p.add_argument("--workers", type=nonneg_int, metavar="N", help="worker processes (1: serial; 0: all cores)")
@@ -48,12 +52,13 @@ def add_arguments(p):
 def resolve(args) -> dict:
     """The preset with the command line's overrides applied."""
     cfg = load_preset(args.preset)
+    if args.out is not None:  # before the flags, so that --library and --set library.path win
+        cfg = with_output(cfg, args.out)
     sets = list(args.set)
     flags = {"run.seed": args.seed, "graph.spec": args.graph, "couplings.alphabet": args.couplings,
              "couplings.fields": args.fields, "couplings.range": args.coupling_range,
              "couplings.precision": args.precision, "search.generations": args.generations,
-             "search.population": args.population, "search.workers": args.workers, "library.path": args.library,
-             "run.output": args.out}
+             "search.population": args.population, "search.workers": args.workers, "library.path": args.library}
     for key, val in flags.items():
         if val is not None:
             sets.append(f"{key}={_toml(val)}")
@@ -73,7 +78,8 @@ def run(args):
     from ..report.summary import print_summary
 
     cfg = resolve(args)
-    executor = make_executor(cfg["search"]["workers"], cluster=args.cluster)
+    quiet = (lambda line: None) if args.quiet else None  # --quiet: errors only
+    executor = make_executor(cfg["search"]["workers"], cluster=args.cluster, notify=quiet)
     show = Progress(cfg, quiet=args.quiet or args.json, stream=sys.stderr)
     quiet = args.quiet or args.json
 

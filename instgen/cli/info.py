@@ -15,9 +15,19 @@ def add_arguments(p):
     add_json(p)
 
 
+def distinct_values(J) -> tuple[np.ndarray, np.ndarray]:
+    """Distinct coupling values and their counts; values closer than 1e-9 of max |J| are one value,
+    so float noise in a file (0.9999999999999998 beside 1, -5.55e-17 beside 0) is not counted apart."""
+    J = np.asarray(J, dtype=np.float64)
+    scale = float(np.abs(J).max()) if J.size else 0.0
+    if scale == 0:
+        return np.unique(J + 0.0, return_counts=True)
+    return np.unique(np.round(J / scale, 9) * scale + 0.0, return_counts=True)
+
+
 def describe(inst) -> dict:
     """A summary of an instance as plain data."""
-    values, counts = np.unique(inst.J, return_counts=True)
+    values, counts = distinct_values(inst.J)
     meta = inst.metadata
     cert = meta.get("certificate")
     out = {

@@ -3,7 +3,7 @@
 from ..errors import InputError
 from ..io import save_instance
 from ..planted import PLANTED, families, plant
-from ._common import add_json, add_seed, print_json
+from ._common import add_json, add_seed, number, print_json
 
 NAME = "plant"
 ORDER = 22
@@ -27,12 +27,7 @@ FLAGS = {
 
 
 def _floats(text):
-    import argparse
-
-    try:
-        return [float(x) for x in text.split(",") if x.strip()]
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected numbers separated by commas, got {text!r}") from None
+    return [number(x) for x in text.split(",") if x.strip()]
 
 
 def add_arguments(p):
@@ -44,13 +39,13 @@ def add_arguments(p):
     g.add_argument("--density", type=float, metavar="A", help="loops per spin (default 0.3)")
     g.add_argument("--min-length", type=int, dest="min_length", metavar="L", help="shortest loop (default 4)")
     g.add_argument("--max-length", type=int, dest="max_length", metavar="L", help="longest loop (default none)")
-    g.add_argument("--cap", type=float, metavar="R", help="largest |J| an edge may accumulate (default none)")
+    g.add_argument("--cap", type=number, metavar="R", help="largest |J| an edge may accumulate (default none)")
     g.add_argument("--loop-weights", type=_floats, dest="weights", metavar="W1,W2",
                    help="weights a loop draws from (default 1)")
     g = p.add_argument_group("wishart")
     g.add_argument("--alpha", type=float, metavar="A", help="columns per spin, M/N (default 0.5)")
     g.add_argument("--disorder", metavar="KIND", help="gaussian or binary entries (default gaussian)")
-    g.add_argument("--coupling-range", type=float, dest="coupling_range", metavar="R",
+    g.add_argument("--coupling-range", type=number, dest="coupling_range", metavar="R",
                    help="rescale so that max |J| = R")
     g = p.add_argument_group("tiles")
     g.add_argument("--mix", metavar="P1,P2,P3",

@@ -25,6 +25,8 @@ Faults:
 
 * A worker that dies mid-task costs a rerun of its tasks elsewhere (the
   scheduler reschedules them; ``retries`` covers errors raised in a task).
+  The executor follows the scheduler's event stream; when a lost worker held
+  tasks of a map, one line goes to ``notify`` (stderr by default).
 * A task that kills several workers in turn, a scheduler that goes away or
   stops answering, or a cluster left without workers for ``idle_timeout``
   seconds raises :class:`~instgen.errors.ClusterError`; the breeding loop then
@@ -34,6 +36,7 @@ Faults:
 from __future__ import annotations
 
 import asyncio
+import collections
 import logging
 import socket
 import time
@@ -144,6 +147,9 @@ class DaskExecutor:
         Seconds to wait for the scheduler (and for its answers).
     idle_timeout : float
         Seconds a cluster may have no workers before the run stops.
+    notify : callable, optional
+        Called with one line when work had to be re-run because a worker was
+        lost (default: print it on stderr).
 
     Examples
     --------
@@ -154,8 +160,11 @@ class DaskExecutor:
     name = "cluster"
 
     def __init__(self, address: str, retries: int = 2, task_seconds: float = 0.5, connect_timeout: float = 10.0,
-                 idle_timeout: float = 300.0, poll: float = 2.0):
+                 idle_timeout: float = 300.0, poll: float = 2.0, notify=None):
         self.kind, where = parse_address(address)
+        self.notify = notify or _to_stderr
+        self.lost: list[dict] = []  # workers lost while holding our tasks: {"worker", "tasks", "round"}
+        self._removals: collections.deque = collections.deque()  # the scheduler's remove-worker events
         self.address = where if self.kind == "remote" else None
         self.local_workers = where if self.kind == "local" else 0
         self.retries = int(retries)
@@ -188,6 +197,7 @@ class DaskExecutor:
             else:
                 _probe(self.address, self.connect_timeout)
             self.client = distributed.Client(self.address, timeout=self.connect_timeout, set_as_default=False)
+            self.client.subscribe_topic("all", self._on_event)
             self.client.wait_for_workers(1, timeout=self.idle_timeout)
             self._check_workers()
             try:
@@ -226,6 +236,10 @@ class DaskExecutor:
         self.client = self.cluster = None
         if client is not None:
             if client.status == "running":
+                try:
+                    client.unsubscribe_topic("all")
+                except Exception:  # noqa: BLE001 - best effort while closing
+                    pass
                 try:
                     client.unregister_worker_plugin(self._plugin_name)
                 except Exception:  # noqa: BLE001 - best effort while closing
@@ -279,6 +293,7 @@ class DaskExecutor:
                 raise
             why = "connection closed" if isinstance(exc, CancelledError) else _first_line(exc)
             raise ClusterError(f"lost the connection to the Dask scheduler at {self.address} ({why})") from None
+        self._report_losses({f.key for f in futures}, len(futures))
         results: list = [None] * len(tasks)
         for idx, (measured, seconds) in zip(batches, parts):
             for i, m in zip(idx, measured):
@@ -289,6 +304,35 @@ class DaskExecutor:
         if self._reads and self._seconds > 0:
             self.per_read = self._seconds / self._reads
         return results
+
+    def _on_event(self, event):
+        """Called (on the client's thread) for each event of the scheduler's ``all`` topic."""
+        _, msg = event
+        if isinstance(msg, dict) and msg.get("action") == "remove-worker":
+            self._removals.append(msg)
+
+    def _report_losses(self, keys: set, total: int):
+        """Say in one line when workers were lost holding some of ``keys`` (their tasks ran again).
+
+        Dask's scheduler announces a ``remove-worker`` event naming the tasks the
+        worker was running and the finished results that died with it; both are run
+        again.  The event comes on the same ordered stream as the news that the
+        re-run tasks finished, so it is here once the map's futures are done.
+        """
+        lost = {}
+        while self._removals:
+            msg = self._removals.popleft()
+            ours = {str(k) for k in (*msg.get("processing-tasks", ()), *msg.get("lost-computed-tasks", ()))}
+            ours &= {str(k) for k in keys}
+            if ours:
+                lost.setdefault(str(msg.get("worker", "?")), set()).update(ours)
+        if not lost:
+            return
+        rerun = len(set().union(*lost.values()))
+        for worker, tasks in lost.items():
+            self.lost.append({"worker": worker, "tasks": len(tasks), "round": self._round})
+        self.notify(f"lost {len(lost)} Dask worker(s) ({', '.join(sorted(lost))}) while scoring; {rerun} of "
+                    f"{total} task(s) were scored again on the other workers (results are unchanged)")
 
     def _plan(self, tasks: list[dict], workers: int) -> list[list[int]]:
         """Contiguous batches of task indices, the same number for every worker, of about equal cost.
@@ -353,6 +397,12 @@ class DaskExecutor:
         from distributed.comm import CommClosedError
 
         return isinstance(exc, (CancelledError, CommClosedError)) or self.client.status != "running"
+
+
+def _to_stderr(line: str) -> None:
+    import sys
+
+    print(f"instgen: {line}", file=sys.stderr, flush=True)
 
 
 def _first_line(exc: Exception) -> str:

@@ -99,9 +99,30 @@ class Famous:
                    d["search_fitness"], d["confirmed"], d["details"])
 
 
-def _resume_hash(cfg: dict) -> str:
+def _settings(cfg: dict) -> dict:
+    """The settings a resumed run must share with its start (all but :data:`RESUMABLE_KEYS`), as JSON data."""
     trimmed = {t: {k: v for k, v in vals.items() if (t, k) not in RESUMABLE_KEYS} for t, vals in cfg.items()}
-    return preset_hash(trimmed)
+    return json.loads(json.dumps(trimmed, sort_keys=True, default=str))
+
+
+def _resume_hash(cfg: dict) -> str:
+    return preset_hash(_settings(cfg))
+
+
+def _differences(started: dict, now: dict) -> list[str]:
+    """``[table] key`` settings that differ between two :func:`_settings`, with both values."""
+    out = []
+    for table in sorted(set(started) | set(now)):
+        a, b = started.get(table) or {}, now.get(table) or {}
+        for key in sorted(set(a) | set(b)):
+            if a.get(key) != b.get(key):
+                out.append(f"[{table}] {key} was {_shown(a.get(key))}, now {_shown(b.get(key))}")
+    return out
+
+
+def _shown(value) -> str:
+    text = "unset" if value is None else json.dumps(value)
+    return text if len(text) <= 60 else text[:57] + "..."
 
 
 class Breeder:
@@ -291,7 +312,8 @@ class Breeder:
     # ------------------------------------------------------------ the run
     def _state(self) -> dict:
         return {
-            "resume_hash": _resume_hash(self.cfg), "generation": self.generation, "evaluations": self.evaluations,
+            "resume_hash": _resume_hash(self.cfg), "settings": _settings(self.cfg),
+            "generation": self.generation, "evaluations": self.evaluations,
             "elapsed": self.elapsed, "best_since": self.best_since,
             "rng": self.rng.bit_generator.state, "population": [i.to_dict() for i in self.population],
             "hall": [f.to_dict() for f in self.hall], "confirmed_keys": sorted(self.confirmed_keys),
@@ -300,13 +322,36 @@ class Breeder:
 
     def _restore(self, doc: dict):
         if doc.get("resume_hash") != _resume_hash(self.cfg):
-            raise ConfigError("this run folder was started with different settings; resume with the same preset "
-                              "(only generations, time_budget, stall, target and workers may change)")
+            raise ConfigError(self._mismatch(doc))
         try:
             self._restore_state(doc)
         except (KeyError, TypeError, ValueError, AttributeError, IndexError) as exc:
             raise FormatError(f"the checkpoint in {self.out} is damaged ({type(exc).__name__}: {exc}); "
                               "start the run again with another --out") from None
+
+    def _mismatch(self, doc: dict) -> str:
+        """One line naming the settings that differ from the ones the run started with.
+
+        Checkpoints store those settings; older ones (hash only) are compared with the run
+        folder's own preset.toml, the resolved settings written when the run started.
+        """
+        started = doc.get("settings")
+        if not isinstance(started, dict):
+            try:
+                from ..preset import load_preset
+
+                started = _settings(load_preset(self.out / "preset.toml"))
+            except (ConfigError, OSError):
+                started = None
+        keys = ", ".join(f"{t}.{k}" for t, k in sorted(RESUMABLE_KEYS) if t == "search")
+        own = self.out / "preset.toml"
+        if isinstance(started, dict) and (diffs := _differences(started, _settings(self.cfg))):
+            shown = "; ".join(diffs[:4]) + (f"; and {len(diffs) - 4} more" if len(diffs) > 4 else "")
+            what = f"this run folder was started with different settings: {shown}"
+        else:
+            what = "this run folder was started with different settings"
+        return (f"{what}; resume with the same preset and flags, or with the run folder's own settings: "
+                f"`instgen breed {own} --out {self.out} --resume` (only {keys} and where files go may change)")
 
     def _restore_state(self, doc: dict):
         self.generation, self.evaluations = doc["generation"], doc["evaluations"]
@@ -427,9 +472,12 @@ def breed(cfg: dict, out=None, fitness=None, executor=None, resume: bool = False
     ``progress`` gets each generation's log record, ``say`` one line per step
     of the work after the search.
     """
+    from ..preset import with_output
     from .finish import finish
 
-    out = Path(out or cfg["run"]["output"])
+    if out is not None:  # out replaces [run] output; a [library] path inside that folder moves along
+        cfg = with_output(cfg, out)
+    out = Path(cfg["run"]["output"])
     if cfg["library"]["path"]:  # the winners are filed at the end: a wrong folder is named before the run
         from ..library import Library
 

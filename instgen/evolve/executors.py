@@ -87,12 +87,16 @@ class PoolExecutor:
             self._pool = None
 
 
-def make_executor(workers: int = 0, cluster: str | None = None):
-    """The executor for ``workers`` (1: serial, 0: all cores) or a Dask ``cluster`` address."""
+def make_executor(workers: int = 0, cluster: str | None = None, notify=None):
+    """The executor for ``workers`` (1: serial, 0: all cores) or a Dask ``cluster`` address.
+
+    ``notify`` receives the cluster's one-line notices (a lost worker whose tasks ran again;
+    default: stderr).
+    """
     if cluster:
         from .cluster import DaskExecutor
 
-        return DaskExecutor(cluster)
+        return DaskExecutor(cluster, notify=notify)
     if workers == 1 or (workers == 0 and (os.cpu_count() or 1) == 1):
         return SerialExecutor()
     return PoolExecutor(workers)

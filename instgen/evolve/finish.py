@@ -140,7 +140,7 @@ def finish(breeder, result: dict, say=None) -> dict:
         inst, cert = _certify(inst, cfg)
         scores = _measure(inst, cfg, ctx, derive_seed(cfg["run"]["seed"], "final", fam.key))
         inst = inst.replace(metadata={**inst.metadata, "scores": [s.to_dict() for s in scores]})
-        path = save_instance(inst, hall_dir / f"{rank:02d}-{fam.key[:10]}.json")
+        path = save_instance(inst, hall_dir / f"{rank:02d}-{fam.canon[:12]}.json")
         entry = _entry(inst, cert, scores, path)
         entry.update(rank=rank, key=fam.key, generation=fam.generation, search_fitness=fam.search_fitness,
                      confirmed_fitness=fam.confirmed)

@@ -30,6 +30,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..couplings import common_step, snap
 from ..errors import ConfigError, InstgenError
 from ..planted.loops import Loop, LoopGraph, fit_loop, fits, random_loop
 from ..planted.terms import (SHAPES, Patch, Sites, applicable_shapes, draw_patch, local_pairs, parse_kinds,
@@ -72,6 +73,8 @@ class TermSetting:
         topo = var.extra["topology"]
         self.weights = [w for w in weights if cap is None or w <= cap]
         self.cap = cap
+        #: the grid every sum of terms lies on: couplings are snapped to it (no float noise such as 1e-16)
+        self.step = rules.precision or common_step(self.weights)
         self.min_length = int(planting.get("min_length", 4))
         self.density = float(planting.get("density", 0.3))
         self.patch_size = int(planting.get("patch_size") or 8)
@@ -163,6 +166,8 @@ class TermGenome:
         self.gauge = np.asarray(gauge, dtype=np.int8)
         self.setting = setting
         J = term_couplings(self.terms, setting.m)
+        if setting.step is not None:
+            J = snap(J, setting.step)
         if setting.cap is not None and np.any(np.abs(J) > setting.cap + _TOL):
             from ..errors import InputError
 

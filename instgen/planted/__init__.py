@@ -53,13 +53,16 @@ class PlantedFamily:
     and whatever the proof needs.  ``verify(instance) -> dict`` re-derives the
     proof from that metadata and returns plain-language details, or raises
     :class:`~instgen.errors.CertificationError` when the instance no longer
-    carries a valid proof.
+    carries a valid proof.  ``rules(instance) -> CouplingRules`` says which
+    coupling alphabet the construction's values come from (the instance's
+    ``metadata["rules"]``, from which scoring and profiles take their schedules).
     """
 
     name: str
     build: Callable
     verify: Callable
     description: str
+    rules: Callable | None = None
 
     def knobs(self) -> dict:
         """The family's keyword knobs and their defaults."""
@@ -100,11 +103,24 @@ def plant(graph, method: str = "loops", seed=None, certify: bool = True, **knobs
         raise InputError(f"planted family {method!r} has no knob(s) {', '.join(unknown)}; "
                          f"valid: {', '.join(sorted(valid)) or 'none'}")
     inst = family.build(graph, seed=seed, **knobs)
+    if family.rules is not None and "rules" not in inst.metadata:
+        inst = with_rules(inst, family.rules(inst))
     if certify:
         from ..certify import attach_certificate, certify as _certify
 
         inst = attach_certificate(inst, _certify(inst, method="planted"))
     return inst
+
+
+def with_rules(instance, rules):
+    """``instance`` with ``metadata["rules"]`` set to ``rules``, its couplings snapped to the rules' grid
+    (the precision, else the common step of a discrete alphabet's values), so sums of terms such as
+    1/3 + 1/3 + 1/3 are stored as 1.0 and not 0.9999999999999998."""
+    from ..couplings import common_step, snap
+
+    step = rules.precision or (common_step(rules.couplings.values) if rules.couplings.discrete else None)
+    J = instance.J if step is None else snap(instance.J, step)
+    return instance.replace(J=J, metadata={**instance.metadata, "rules": rules.to_dict()})
 
 
 def families() -> list[PlantedFamily]:
@@ -136,4 +152,4 @@ def construction_of(instance, family: str) -> dict:
     return con
 
 
-__all__ = ["PLANTED", "PlantedFamily", "plant", "families", "planted_gauge_couplings", "construction_of"]
+__all__ = ["PLANTED", "PlantedFamily", "plant", "with_rules", "families", "planted_gauge_couplings", "construction_of"]

@@ -622,5 +622,13 @@ def verify(instance) -> dict:
     }
 
 
+def rules(instance):
+    """The coupling rules of a loop construction: its loop weights, capped at its cap."""
+    from ..couplings import CouplingRules
+
+    construction = instance.metadata["construction"]
+    return CouplingRules.of_weights(construction.get("weights") or [1.0], construction.get("cap"))
+
+
 FAMILY = PlantedFamily("loops", plant_loops, verify,
-                       "frustrated loops on any graph; density = loops per spin (Hen et al. 2015)")
+                       "frustrated loops on any graph; density = loops per spin (Hen et al. 2015)", rules)

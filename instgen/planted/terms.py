@@ -362,6 +362,14 @@ def verify(instance) -> dict:
     }
 
 
+def rules(instance):
+    """The coupling rules of a term construction: its weights, capped at its cap."""
+    from ..couplings import CouplingRules
+
+    construction = instance.metadata["construction"]
+    return CouplingRules.of_weights(construction.get("weights") or [1.0], construction.get("cap"))
+
+
 FAMILY = PlantedFamily("terms", plant_terms, verify,
                        "sums of frustrated loops and small frustrated patches (cells, tiles, cliques, balls), "
-                       "each with the planted state as a ground state; density = terms per spin")
+                       "each with the planted state as a ground state; density = terms per spin", rules)

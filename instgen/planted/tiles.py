@@ -251,6 +251,19 @@ def verify(instance) -> dict:
     }
 
 
+def rules(instance):
+    """The coupling rules of a tile construction: the bond magnitudes of the tile classes it draws."""
+    from ..couplings import CouplingRules
+
+    construction = instance.metadata["construction"]
+    used = [name for name, p in (construction.get("mix") or {}).items() if p > 0]
+    if construction.get("lattice") == "square":
+        mags = {abs(v) for name in used for v in CLASSES_2D[name]}
+    else:
+        mags = {1.0}  # cube tiles have bonds of +-1 only
+    return CouplingRules.of_weights(sorted(mags) or [1.0])
+
+
 FAMILY = PlantedFamily("tiles", plant_tiles, verify,
                        "frustrated tiles on square/cubic lattices; mix = weights of the tile classes "
-                       "(after Perera et al. 2020, Hamze et al. 2018)")
+                       "(after Perera et al. 2020, Hamze et al. 2018)", rules)

@@ -155,5 +155,19 @@ def verify(instance) -> dict:
     }
 
 
+def rules(instance):
+    """The coupling rules of a Wishart construction: Gaussian couplings of the ensemble's spread.
+
+    An off-diagonal J_ij = (1/N) sum over M columns of products of unit-variance entries has
+    standard deviation sqrt(M) / N (times the rescaling factor); the range is the rescaled
+    maximum, when one was asked for.
+    """
+    from ..couplings import CouplingRules
+
+    construction = instance.metadata["construction"]
+    sigma = float(np.sqrt(construction["columns"])) / instance.n * construction.get("scale_factor", 1.0)
+    return CouplingRules.make(f"gaussian:{sigma!r}", "none", coupling_range=construction.get("coupling_range"))
+
+
 FAMILY = PlantedFamily("wishart", plant_wishart, verify,
-                       "Wishart planted ensemble on complete graphs; alpha = M/N (Hamze et al. 2020)")
+                       "Wishart planted ensemble on complete graphs; alpha = M/N (Hamze et al. 2020)", rules)

@@ -82,3 +82,43 @@ def test_plant_list(capsys):
     names = {r["name"]: r for r in json.loads(out)}
     assert code == 0 and set(names) >= {"loops", "wishart", "tiles"}
     assert "--density" in names["loops"]["options"] and "--mix" in names["tiles"]["options"]
+
+
+@pytest.mark.parametrize("argv,alphabet,limit", [
+    (["chimera:2", "--method", "loops", "--density", "0.5", "--cap", "3", "--loop-weights", "1,2,3"], "int:3", 3),
+    (["chimera:2", "--method", "terms", "--kinds", "loop,cell", "--loop-weights", "1/3,2/3,1", "--cap", "1"],
+     "levels:-1,-2/3,-1/3,1/3,2/3,1", 1),
+    (["square:4,periodic", "--method", "tiles", "--mix", "0.2,0.5,0.3"], "int:2", None),
+    (["complete:10", "--method", "wishart", "--alpha", "0.7", "--coupling-range", "1"], "gaussian", 1),
+])
+def test_planted_files_carry_their_alphabet_and_profile_without_a_scale(tmp_path, capsys, argv, alphabet, limit):
+    f = tmp_path / "p.json"
+    assert run(["plant", *argv, "--seed", 5, "-o", f], capsys)[0] == 0
+    inst = load_instance(f)
+    rules = inst.metadata["rules"]
+    assert rules["couplings"].startswith(alphabet) and rules["coupling_range"] == limit
+    # the alphabet bounds every coupling where the construction caps them (its range)
+    if limit is not None:
+        assert abs(inst.J).max() <= limit
+    # the proof survives (planted energy = the energy dimod computes for the planted state)
+    bqm = dimod.BinaryQuadraticModel.from_ising(dict(enumerate(inst.h)),
+                                                {tuple(map(int, e)): j for e, j in zip(inst.edges, inst.J)})
+    assert bqm.energy(dict(enumerate(inst.planted.tolist()))) == pytest.approx(inst.planted_energy)
+    assert inst.metadata["certificate"]["status"] == "planted"
+    code, out, err = run(["profile", f, "--points", 6, "--reads", 8, "--sweeps", 60, "--seed", 1,
+                          "--out", tmp_path, "--json"], capsys)
+    assert code == 0, err
+    assert "coupling alphabet" in json.loads(out)["settings"]["beta_range_source"]
+
+
+def test_wishart_alphabet_spread_matches_its_couplings(tmp_path, capsys):
+    # the recorded gaussian sigma = sqrt(M)/N against the spread numpy measures on a large instance
+    import numpy as np
+
+    f = tmp_path / "w.json"
+    assert run(["plant", "complete:120", "--method", "wishart", "--alpha", "0.5", "--seed", 2, "-o", f],
+               capsys)[0] == 0
+    inst = load_instance(f)
+    sigma = float(inst.metadata["rules"]["couplings"].partition(":")[2])
+    assert sigma == pytest.approx(np.sqrt(60) / 120, rel=1e-5)
+    assert np.std(inst.J) == pytest.approx(sigma, rel=0.1)

@@ -112,7 +112,8 @@ def _kill_worker_mid_task(client, token, report):
 
 @pytest.mark.slow
 def test_worker_killed_mid_generation_costs_a_retry_not_the_run(serial, client, tmp_path):
-    ex = DaskExecutor(client.scheduler.address, task_seconds=10)
+    notices = []
+    ex = DaskExecutor(client.scheduler.address, task_seconds=10, notify=notices.append)
     report = {}
     killer = threading.Thread(target=_kill_worker_mid_task, args=(client, ex.token, report), daemon=True)
     killer.start()
@@ -125,6 +126,17 @@ def test_worker_killed_mid_generation_costs_a_retry_not_the_run(serial, client, 
                 if isinstance(msg, dict) and msg.get("action") == "remove-worker" and msg["worker"] == report["worker"]]
     assert removals and not removals[-1]["expected"]
     assert any(str(k).startswith(f"instgen-score-{ex.token}-") for k in removals[-1]["processing-tasks"])
+    # and the user was told, in one line naming the worker dask removed
+    assert len(notices) == 1 and "\n" not in notices[0] and report["worker"] in notices[0]
+    assert "scored again" in notices[0] and ex.lost[0]["worker"] == report["worker"]
+
+
+@pytest.mark.slow
+def test_a_run_without_lost_workers_says_nothing(serial, client, tmp_path):
+    notices = []
+    ex = DaskExecutor(client.scheduler.address, task_seconds=10, notify=notices.append)
+    Breeder(tiny(), tmp_path, executor=ex).run()
+    assert notices == [] and ex.lost == []
 
 
 def _free_port() -> int:

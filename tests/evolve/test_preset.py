@@ -61,3 +61,15 @@ def test_missing_and_broken_files(tmp_path):
     bad.write_text("[search\npopulation = 3")
     with pytest.raises(ConfigError, match="not valid TOML"):
         load_preset(bad)
+
+
+def test_precision_and_range_may_be_written_as_fractions_in_a_preset():
+    # TOML has no fractions (toml.io spec: numbers are integers or floats), so "1/3" is a string the preset
+    # reads as the float nearest to 1/3, the same value Python's 1 / 3 gives
+    text = ('[couplings]\nalphabet = "levels:-1,-2/3,-1/3,1/3,2/3,1"\nrange = "1"\nprecision = "1/3"\n')
+    cfg = validate(tomllib.loads(text))
+    assert cfg["couplings"]["precision"] == 1 / 3 and cfg["couplings"]["range"] == 1.0
+    typed = validate(tomllib.loads(text.replace('"1/3"', "0.3333333333333333").replace('"1"', "1.0")))
+    assert typed == cfg
+    with pytest.raises(ConfigError, match=r"\[couplings\] precision"):
+        validate(tomllib.loads('[couplings]\nprecision = "1/zero"\n'))
