@@ -11,23 +11,17 @@ from pathlib import Path
 
 import numpy as np
 
-from instgen.cli import main
 from instgen.cli.breed import DESCRIPTION, add_arguments, resolve
 from instgen.instance import Instance
 from instgen.io import save_instance
 from instgen.make import rules_of
+from instgen.testing.cli import run_cli
 
 ROOT = Path(__file__).resolve().parents[2]
 THIRDS = {float(Fraction(k, 3)) for k in range(-3, 4) if k}
 
 
-def run(argv, capsys):
-    try:
-        code = main([str(a) for a in argv])
-    except SystemExit as exc:
-        code = exc.code
-    out = capsys.readouterr()
-    return code, out.out, out.err
+run = run_cli
 
 
 def test_the_breed_help_example_is_accepted_as_typed(monkeypatch):

@@ -5,15 +5,10 @@ import sys
 import pytest
 
 from instgen.cli import main
+from instgen.testing.cli import run_cli
 
 
-def run(argv, capsys):
-    try:
-        code = main(argv)
-    except SystemExit as exc:  # argparse's own refusals
-        code = exc.code
-    out = capsys.readouterr()
-    return code, out.out, out.err
+run = run_cli
 
 
 def test_make_then_info(tmp_path, capsys):

@@ -13,15 +13,10 @@ from instgen.instance import random_gauge
 from instgen.io import save_instance
 from instgen.make import make_instance
 from instgen.records import Certificate, Score
+from instgen.testing.cli import run_cli
 
 
-def run(argv, capsys):
-    try:
-        code = main(argv)
-    except SystemExit as exc:
-        code = exc.code
-    out = capsys.readouterr()
-    return code, out.out, out.err
+run = run_cli
 
 
 def snapshot(root):

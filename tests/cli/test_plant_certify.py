@@ -5,17 +5,11 @@ import json
 import dimod
 import pytest
 
-from instgen.cli import main
 from instgen.io import load_instance
+from instgen.testing.cli import run_cli
 
 
-def run(argv, capsys):
-    try:
-        code = main([str(a) for a in argv])
-    except SystemExit as exc:  # argparse's own refusals
-        code = exc.code
-    out = capsys.readouterr()
-    return code, out.out, out.err
+run = run_cli
 
 
 @pytest.mark.parametrize("argv", [

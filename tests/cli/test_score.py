@@ -8,19 +8,13 @@ import sys
 import numpy as np
 import pytest
 
-from instgen.cli import main
 from instgen.instance import Instance, random_gauge
 from instgen.io import save_instance
 from instgen.make import make_instance
+from instgen.testing.cli import run_cli
 
 
-def run(argv, capsys):
-    try:
-        code = main(argv)
-    except SystemExit as exc:  # argparse's own refusals
-        code = exc.code
-    out = capsys.readouterr()
-    return code, out.out, out.err
+run = run_cli
 
 
 @pytest.fixture(scope="module")

@@ -7,6 +7,7 @@ import pytest
 
 from instgen.evolve.engine import breed
 from instgen.preset import validate
+from instgen.testing.cli import run_cli
 
 
 def tiny(tmp_path, **tables):
@@ -60,15 +61,7 @@ time_limit = 5
 """
 
 
-def run(argv, capsys):
-    from instgen.cli import main
-
-    try:
-        code = main([str(a) for a in argv])
-    except SystemExit as exc:
-        code = exc.code
-    out = capsys.readouterr()
-    return code, out.out, out.err
+run = run_cli
 
 
 def _started(tmp_path, capsys):
