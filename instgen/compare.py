@@ -11,11 +11,14 @@ interval and nothing else:
 * **easier** when it lies on the easier side,
 * **not distinguishable** when it contains 1 (or cannot be formed).
 
-Figures that are bounds are not values: a ratio is formed only when every
-figure of both groups is a value, or when the bounds all point the same way
-as the claim (bred figures that are lower bounds on a "higher is harder"
-metric make the ratio itself a lower bound, which can support "harder" but
-never "easier").  Otherwise there is no ratio, and the row says why.
+Figures that are bounds are not values, and a verdict must hold whatever
+their true values are: each claim is tested with the bounds set to their worst
+case for it.  For "the winners' median is larger", a winner figure that is an
+upper bound counts as 0 and a baseline figure that is a lower bound as
+infinite; for "smaller", the other way round.  The interval printed spans both
+tests (its low end from the first, its high end from the second), so a verdict
+read from it is safe from the bounds; with no bounds it is the plain bootstrap
+interval.
 """
 
 from __future__ import annotations
@@ -76,48 +79,66 @@ def verdict(ci, harder: str = "higher", kind: str = "value") -> str:
     return SAME
 
 
-def _ratio_kind(group_kinds, base_kinds) -> str | None:
-    """The kind of median(group) / median(baseline) given the kinds of their figures (None: not formed)."""
-    g, b = set(group_kinds), set(base_kinds)
-    if g <= {"value"} and b <= {"value"}:
-        return "value"
-    # a larger numerator or a smaller denominator can only make the ratio larger
-    if g <= {"value", "lower bound"} and b <= {"value", "upper bound"}:
-        return "lower bound"
-    if g <= {"value", "upper bound"} and b <= {"value", "lower bound"}:
-        return "upper bound"
-    return None
+def _bootstrap_ratio(group, baseline, seed, draws: int, confidence: float, nan_as: float):
+    """Percentile bootstrap of median(group) / median(baseline) for values that may be 0 or infinite."""
+    w = np.asarray(group, dtype=float)
+    b = np.asarray(baseline, dtype=float)
+    if w.size < 2 or b.size < 2:
+        return None
+    rng = as_generator(seed)
+    rw = np.median(w[rng.integers(0, w.size, (draws, w.size))], axis=1)
+    rb = np.median(b[rng.integers(0, b.size, (draws, b.size))], axis=1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        r = rw / rb
+    r = np.where(np.isnan(r), nan_as, r)
+    # order statistics, not interpolation: the replicates may be 0 or infinite
+    lo = np.quantile(r, (1 - confidence) / 2, method="lower")
+    hi = np.quantile(r, (1 + confidence) / 2, method="higher")
+    return float(lo), float(hi)
 
 
-def compare_figures(group: list[dict], baseline: list[dict], harder: str, seed, *, confidence: float = 0.95) -> dict:
+def _worst(scores, kind: str, to: float):
+    """Values with the figures of one kind (a bound) replaced by ``to``, the worst case for a claim."""
+    return [float(to) if s["kind"] == kind else float(s["value"]) for s in scores]
+
+
+def compare_figures(group: list[dict], baseline: list[dict], harder: str, seed, *, confidence: float = 0.95,
+                    draws: int = 2000) -> dict:
     """One comparison row from two lists of score dicts (``value`` and ``kind`` each).
 
-    Returns medians, ratio, its kind and interval, the verdict and a sentence.
+    Returns the medians, the ratio of the figures as given, an interval that
+    allows for any bounds among them, the verdict and a sentence.
     """
     gv = [s["value"] for s in group]
     bv = [s["value"] for s in baseline]
     gm = float(np.median(gv)) if gv else None
     bm = float(np.median(bv)) if bv else None
+    bounds = sum(s["kind"] != "value" for s in group) + sum(s["kind"] != "value" for s in baseline)
     row = {"group_median": gm, "baseline_median": bm, "group": len(gv), "baseline": len(bv),
            "group_bounds": sum(s["kind"] != "value" for s in group),
            "baseline_bounds": sum(s["kind"] != "value" for s in baseline)}
-    kind = _ratio_kind([s["kind"] for s in group], [s["kind"] for s in baseline])
     ratio = None
-    if kind and gm is not None and bm not in (None, 0) and math.isfinite(gm) and math.isfinite(bm):
+    all_bounds = (gv and row["group_bounds"] == len(gv)) or (bv and row["baseline_bounds"] == len(bv))
+    if not all_bounds and gm is not None and bm not in (None, 0) and math.isfinite(gm) and math.isfinite(bm):
         ratio = gm / bm
-    ci = ratio_interval(gv, bv, seed, confidence=confidence) if ratio is not None else None
-    if ci is not None:
+    # "larger" is tested with the winners' upper bounds at 0 and the baseline's lower bounds at infinity (true
+    # values could be anywhere beyond them); "smaller" with the winners' lower bounds at infinity and the
+    # baseline's upper bounds at 0.  A bound on the other side is taken at its value, the worst case for the claim.
+    big = _bootstrap_ratio(_worst(group, "upper bound", 0.0), _worst(baseline, "lower bound", math.inf),
+                           seed, draws, confidence, nan_as=0.0)
+    small = _bootstrap_ratio(_worst(group, "lower bound", math.inf), _worst(baseline, "upper bound", 0.0),
+                             seed, draws, confidence, nan_as=math.inf)
+    ci = None if big is None or small is None else (big[0], small[1])
+    if ci is not None and ratio is not None and not bounds:
         ci = (min(ci[0], ratio), max(ci[1], ratio))
-    row.update(ratio=ratio, ratio_kind=kind if ratio is not None else None,
-               ratio_ci=list(ci) if ci else None, verdict=verdict(ci, harder, kind or "value"))
-    if ratio is None:
-        why = ("the figures include bounds pointing both ways" if kind is None else
-               "one group has no finite median")
-        row["sentence"] = f"no ratio ({why}): {row['verdict']}"
-    elif ci is None:
-        row["sentence"] = (f"ratio {'>= ' if kind == 'lower bound' else '<= ' if kind == 'upper bound' else ''}"
-                           f"{ratio:.3g}, too few instances for an interval: not distinguishable")
+    row.update(ratio=ratio, ratio_kind="value" if not bounds else "allows for bounds",
+               ratio_ci=list(ci) if ci else None, verdict=verdict(ci, harder))
+    shown = (f"ratio {ratio:.3g}" if ratio is not None else
+             "no ratio (every figure of one group is a bound)" if all_bounds else "no ratio")
+    if ci is None:
+        row["sentence"] = f"{shown}, too few instances for an interval: {row['verdict']}"
     else:
-        sign = {"lower bound": ">= ", "upper bound": "<= "}.get(kind, "")
-        row["sentence"] = (f"ratio {sign}{ratio:.3g} (95% interval {ci[0]:.3g} to {ci[1]:.3g}): {row['verdict']}")
+        hi = "inf" if math.isinf(ci[1]) else f"{ci[1]:.3g}"
+        allow = f", allowing for {bounds} figure(s) that are bounds" if bounds else ""
+        row["sentence"] = f"{shown} (95% interval {ci[0]:.3g} to {hi}{allow}): {row['verdict']}"
     return row

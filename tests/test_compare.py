@@ -16,6 +16,7 @@ def _scores(values, kind="value"):
     ((0.6, 1.7), "higher", "not distinguishable"),  # interval across 1
     ((0.0186, 0.559), "lower", "harder"),    # success probability: lower is harder
     ((1.3, 4.0), "lower", "easier"),
+    ((1.3, float("inf")), "higher", "harder"),
     (None, "higher", "not distinguishable"),
 ])
 def test_verdict_on_intervals_above_below_and_across_one(ci, harder, expected):
@@ -33,23 +34,35 @@ def test_rows_say_easier_when_the_winners_are_clearly_easier():
     assert "easier" in row["sentence"] and "interval" in row["sentence"]
 
 
-def test_no_ratio_of_two_bounds_that_point_opposite_ways():
+def test_no_ratio_of_two_bounds():
+    # never solved on either side: the figures are lower bounds, and no ratio of them is printed
     winners = _scores([100, 200, 300], "lower bound")
     base = _scores([100, 200, 300], "lower bound")
     row = compare_figures(winners, base, "higher", seed=1)
     assert row["ratio"] is None and row["verdict"] == "not distinguishable"
-    assert row["sentence"].startswith("no ratio")
+    assert row["sentence"].startswith("no ratio (every figure of one group is a bound)")
 
 
-def test_a_lower_bound_ratio_supports_harder_but_never_easier():
-    # winners never solved (lower bounds) far above solved random instances: the ratio is a lower bound
-    winners = _scores([1e6, 2e6, 3e6], "lower bound")
+def test_a_verdict_holds_whatever_the_bounds_hide():
+    # winners never solved (lower bounds) far above solved random instances: harder, whatever their true values
     base = _scores([100, 120, 140])
-    row = compare_figures(winners, base, "higher", seed=1)
-    assert row["ratio_kind"] == "lower bound" and row["verdict"] == "harder"
-    assert row["sentence"].startswith("ratio >= ")
-    low = compare_figures(_scores([1, 2, 3], "lower bound"), base, "higher", seed=1)
-    assert low["verdict"] == "not distinguishable"  # a lower bound below 1 says nothing
+    row = compare_figures(_scores([1e6, 2e6, 3e6], "lower bound"), base, "higher", seed=1)
+    assert row["verdict"] == "harder" and row["ratio"] is None
+    # one winner an upper bound (optimum beyond the longest anneal): counted as 0 for "harder", which still holds
+    solved = [2.8e6, 5.1e6, 2.6e6, 3.3e6, 4.0e6, 2.9e6, 3.7e6, 4.4e6, 3.1e6, 2.7e6, 3.9e6]
+    random = [2.9e5, 1.6e5, 1.5e5, 7.7e5, 2.2e5, 3.1e5, 1.8e5, 2.5e5]
+    winners = _scores(solved) + _scores([2.2e7], "upper bound")
+    row = compare_figures(winners, _scores(random), "higher", seed=1)
+    assert row["verdict"] == "harder"
+    assert row["ratio"] == pytest.approx(np.median(solved + [2.2e7]) / np.median(random))
+    assert "allowing for 1 figure(s) that are bounds" in row["sentence"]
+    # with four instances, one of them a bound, the same claim is out of reach
+    few = compare_figures(_scores(solved[:3]) + _scores([2.2e7], "upper bound"), _scores(random[:4]), "higher",
+                          seed=1)
+    assert few["verdict"] == "not distinguishable"
+    # lower bounds below the baseline cannot make the winners "easier": their true values may be higher
+    low = compare_figures(_scores([1, 2, 3], "lower bound") + _scores([2]), base, "higher", seed=1)
+    assert low["verdict"] == "not distinguishable"
 
 
 def test_ratio_interval_contains_the_known_ratio():
