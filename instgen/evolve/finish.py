@@ -160,6 +160,7 @@ def finish(breeder, result: dict, say=None) -> dict:
         "search_progress": stall(breeder.history),
         "asked": {"count": cfg["library"]["count"], "hall_of_fame": cfg["search"]["hall_of_fame"],
                   "confirmed": len(breeder.confirmed_keys), "kept": len(breeder.hall)},
+        "never_solved_on_confirmation": sum(f.details.get("kind") == "lower bound" for f in breeder.hall),
     }
     summary["measuring"] = {"pinning": pinning(cfg).to_dict(), **measuring_cost(summary)}
     summary["comparison"] = compare(summary, seed=derive_seed(cfg["run"]["seed"], "comparison"))
@@ -309,6 +310,11 @@ def cautions(summary: dict) -> list[str]:
     for row in summary.get("comparison", []):
         if row["verdict"] != HARDER:
             out.append(comparison_words(row) + ".")
+    blind = summary.get("never_solved_on_confirmation") or 0
+    if blind:
+        out.append(f"{blind} of {(summary.get('asked') or {}).get('kept', len(summary['winners']))} hall-of-fame entries were never solved by their "
+                   "confirmation reads on the search grid, so the search could rank them only by residual energy: "
+                   "longer anneals in [fitness] sweeps or more confirm_reads would let it see further.")
     prog = summary.get("search_progress") or {}
     if prog.get("stalled"):
         out.append(f"The search stalled: the confirmed best has not improved since generation "

@@ -145,3 +145,16 @@ def test_fewer_winners_than_asked_is_said(tmp_path):
     summary = breed(cfg, out=tmp_path / "few")
     assert len(summary["winners"]) <= 2
     assert any("asked for 5 winners" in c and "hall_of_fame keeps only 2" in c for c in summary["cautions"])
+
+
+def test_a_search_blind_beyond_its_grid_is_told_so():
+    from instgen.evolve.finish import cautions, stall
+
+    summary = {"winners": [], "baseline": {"count": 0, "certified": 0, "instances": []}, "run": {"solvers": ["sa"]},
+               "asked": {"count": 4, "hall_of_fame": 8, "confirmed": 9, "kept": 8}, "never_solved_on_confirmation": 8}
+    assert any(c.startswith("8 of 8 hall-of-fame entries were never solved") for c in cautions(summary))
+    # a confirmed best that never moves after its first confirmation is a stall
+    flat = [{"median": 1.0, "best_confirmed": None}] + [{"median": 1.0, "best_confirmed": 2.0}] * 5
+    assert stall(flat)["stalled"] and stall(flat)["first_confirmed_generation"] == 1
+    rising = [{"median": 1.0, "best_confirmed": v} for v in (None, 2.0, 2.0, 3.0)]
+    assert not stall(rising)["stalled"] and stall(rising)["last_improvement_generation"] == 3
