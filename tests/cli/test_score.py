@@ -96,6 +96,11 @@ def test_options_schedule_shape_and_perturbation(files, capsys):
     (["score", "{random}", "--sweeps", "0,10"], "positive"),
     (["score", "{random}", "--beta-range", "1"], "two numbers"),
     (["score", "{random}", "--sampler", "pimc", "--option", "pimc.transverse=0", "--sweeps", "5"], "zero at every"),
+    (["score", "{random}", "--budget", "-1", "--reads", "2"], "pinning budget"),
+    (["score", "{random}", "--budget", "nan", "--reads", "2"], "pinning budget"),
+    (["score", "{random}", "--cold-ends", "0", "--reads", "2"], "cold ends are positive"),
+    (["score", "{random}", "--cold-ends", "x"], "expected numbers"),
+    (["score", "{random}", "--max-sweeps", "0"], "positive"),
 ])
 def test_bad_input_is_one_line_and_exit_2(files, capsys, argv, needle):
     argv = [a.format(**{k: v for k, v in files.items()}) for a in argv]
