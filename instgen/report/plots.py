@@ -167,7 +167,7 @@ def baseline_figure(summary: dict):
                     ratio = f"{r['ratio']:.2g}x" if _finite(r.get("ratio")) else "no ratio"
                     words.append(f"vs {'random' if r['against'] == 'random' else 'start'}: {ratio}, {r['verdict']}")
             label = "TTS99" if metric == "tts" else metric
-            ax.set_title(f"{label} on {solver}\n" + "; ".join(words), fontsize=8)
+            ax.set_title(f"{label} on {solver}\n" + "\n".join(words), fontsize=8)
             ax.set_ylabel(f"{label} ({units})" if units else label)
             ax.grid(axis="x", visible=False)
         if not panels:

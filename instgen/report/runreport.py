@@ -131,8 +131,9 @@ def _comparison_table(summary: dict) -> str:
                   "ratio, 95% interval", "winners are", "winners", "baseline instances"], rows, "comparison") + (
         '<p class="note">The interval resamples the instances of each group (bootstrap of the ratio of medians); '
         "with few instances it is wide. The verdict follows the interval: harder or easier only when it excludes "
-        "1. A ratio is formed only from values, or from bounds that all point one way (then the ratio is a bound "
-        "too and supports a verdict only in its own direction).</p>")
+        "1. Where some figures are bounds, each end of the interval is computed with those bounds at their worst "
+        "case for that end (an upper bound as 0, a lower bound as infinite), so the verdict holds whatever the "
+        "bounds hide; no ratio is given when every figure of a group is a bound.</p>")
 
 
 SETTING_NAMES = {"name": "run name", "id": "run id", "seed": "run seed", "graph": "graph", "n": "spins",
