@@ -140,20 +140,28 @@ SETTING_NAMES = {"name": "run name", "id": "run id", "seed": "run seed", "graph"
                  "m": "couplings", "metric": "fitness metric", "sampler": "search sampler",
                  "solvers": "solvers measured on", "sweeps": "sweep counts",
                  "beta_range": "inverse temperature range (hot, cold)", "preset_hash": "preset checksum",
-                 "folder": "run folder"}
+                 "folder": "run folder", "search_solvers": "further search solvers (fitness is the least over all)"}
 
 
 def _settings_table(summary: dict) -> str:
     run = dict(summary["run"])
     rules = run.pop("rules", {}) or {}
     show = lambda v: "–" if v is None else ", ".join(map(str, v)) if isinstance(v, list) else v
-    rows = [[text_cell(SETTING_NAMES.get(k, k)), text_cell(show(v))] for k, v in run.items()]
-    rows += [[text_cell(f"coupling rules: {k.replace('_', ' ')}"), text_cell(show(v))] for k, v in rules.items()]
+    empty = lambda v: v is None or v == [] or v == ""  # a setting that is not set is not shown
+    rows = [[text_cell(SETTING_NAMES.get(k, k.replace("_", " "))), text_cell(show(v))] for k, v in run.items()
+            if not empty(v)]
+    rows += [[text_cell(f"coupling rules: {k.replace('_', ' ')}"), text_cell(show(v))] for k, v in rules.items()
+             if not empty(v)]
     rows += [[text_cell("stopped because"), text_cell(summary.get("stopped"))],
              [text_cell("generations"), num_cell(summary.get("generations"))],
              [text_cell("evaluations"), num_cell(summary.get("evaluations"))],
              [text_cell("search time (s)"), num_cell(summary.get("elapsed"), 4)],
              [text_cell("random baseline instances"), num_cell(summary["baseline"]["count"])]]
+    pin = (summary.get("measuring") or {}).get("pinning")
+    if pin:
+        rows += [[text_cell("pinning TTS99: budget per figure (spin updates)"), num_cell(pin["budget"])],
+                 [text_cell("pinning TTS99: longest anneal (sweeps)"), num_cell(pin["max_sweeps"])],
+                 [text_cell("pinning TTS99: successes at the optimum"), num_cell(pin["successes"])]]
     return table(["setting", "value"], rows, "settings")
 
 

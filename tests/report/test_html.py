@@ -146,6 +146,8 @@ def test_comparison_and_baseline_tables(run_report):
     assert [exact(r["ground-state energy"]) for r in base] == [
         e["certificate"]["energy"] for e in summary["baseline"]["instances"]]
     settings = {r["setting"][0]: r["value"][0] for r in page.table("settings")}
+    assert all(v.strip() not in ("", "–") for v in settings.values())  # settings that are not set are not shown
+    assert "search_solvers" not in settings and all("_" not in k for k in settings)  # no raw keys
     assert settings["graph"] == summary["run"]["graph"] and settings["run seed"] == str(summary["run"]["seed"])
 
 
