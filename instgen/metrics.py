@@ -185,7 +185,7 @@ def zero_success_bound(effort: float, trials: int, confidence: float = 0.95, q: 
     From the one-sided upper confidence limit on p, 1 - (1 - confidence)^(1/trials).
 
     >>> round(zero_success_bound(1.0, 100), 1)
-    152.8
+    153.7
     """
     alpha = 1.0 - _check_confidence(confidence)
     return float(effort * repetitions(1.0 - alpha ** (1.0 / int(trials)), q))

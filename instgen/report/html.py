@@ -249,12 +249,27 @@ def page(title: str, lead: str, cautions: list[str], sections: list[str], footer
             f"<footer>{footer}</footer></main><script>{SCRIPT}</script></body></html>\n")
 
 
+def shown_path(path, folder) -> str:
+    """A path as a report shows it: relative to the report's folder, never the user's absolute path.
+
+    >>> shown_path("/home/ada/runs/demo/library", "/home/ada/runs/demo")
+    'library'
+    >>> shown_path("/srv/shared/lib", "/home/ada/runs/demo")
+    '…/lib'
+    """
+    p, f = Path(path), Path(folder)
+    try:
+        return str(p.resolve().relative_to(f.resolve())) or "."
+    except (ValueError, OSError):
+        return str(p) if not p.is_absolute() else f"…/{p.name}"
+
+
 def footer_text(folder: Path) -> str:
     from .. import __version__
 
     when = _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")
-    return (f"Written by instgen {esc(__version__)} on {when} from {esc(folder)}. "
-            f"Plots are also saved as PNG files in {esc(folder / PLOTS_DIR)}.")
+    return (f"Written by instgen {esc(__version__)} on {when} from the folder {esc(Path(folder).resolve().name)}. "
+            f"Plots are also saved as PNG files in {esc(PLOTS_DIR)}/ beside this page.")
 
 
 # ----------------------------------------------------------------- entry point

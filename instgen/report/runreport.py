@@ -16,7 +16,7 @@ from ..errors import InstgenError
 from ..seeds import derive_seed
 from . import plots
 from .html import (BOUND_NOTE, CURVES_SHOWN, PLOTS_DIR, esc, figure, fmt, footer_text, load_run, num_cell, page,
-                   score_cell, score_head, status_cell, table, text_cell)
+                   score_cell, score_head, shown_path, status_cell, table, text_cell)
 
 
 def _save(fig, folder: Path, name: str) -> bytes:
@@ -148,6 +148,8 @@ def _settings_table(summary: dict) -> str:
     rules = run.pop("rules", {}) or {}
     show = lambda v: "–" if v is None else ", ".join(map(str, v)) if isinstance(v, list) else v
     empty = lambda v: v is None or v == [] or v == ""  # a setting that is not set is not shown
+    if run.get("folder"):
+        run["folder"] = Path(run["folder"]).name  # the user's own paths stay out of a page that travels
     rows = [[text_cell(SETTING_NAMES.get(k, k.replace("_", " "))), text_cell(show(v))] for k, v in run.items()
             if not empty(v)]
     rows += [[text_cell(f"coupling rules: {k.replace('_', ' ')}"), text_cell(show(v))] for k, v in rules.items()
@@ -261,7 +263,7 @@ def run_page(folder: Path, *, reads: int, profiles: int, profile_reads: int, pro
     sections.append("<h2>Run settings</h2>" + _settings_table(summary))
     if summary.get("library"):
         lib = summary["library"]
-        sections.append(f"<p>Winners filed into the library {esc(lib['path'])} ({lib['filed']} filed, "
+        sections.append(f"<p>Winners filed into the library {esc(shown_path(lib['path'], folder))} ({lib['filed']} filed, "
                         f"{lib['new']} new).</p>")
     cautions = list(summary["cautions"]) + notes
     title = f"Breeding run “{run['name']}”"

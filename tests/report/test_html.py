@@ -298,3 +298,10 @@ def test_report_renders_in_chromium(which, run_report, library_report):
     assert res.returncode == 0 and shot.is_file()
     img = mimage.imread(shot)
     assert img.shape[:2] == (2000, 1280) and img[..., :3].std() > 0.05
+
+
+def test_a_report_carries_no_absolute_path_of_this_machine(run_report):
+    # a report is mailed and archived: the user's own folders stay out of it (common practice for shared files)
+    folder, summary, path = run_report
+    text = path.read_text()
+    assert str(folder.resolve()) not in text and str(folder) not in text
