@@ -42,39 +42,29 @@ def ratio_interval(group, baseline, seed, draws: int = 2000, confidence: float =
     >>> 7 < lo < hi < 14
     True
     """
-    w = np.array([v for v in group if isinstance(v, (int, float)) and math.isfinite(v)], dtype=float)
-    b = np.array([v for v in baseline if isinstance(v, (int, float)) and math.isfinite(v)], dtype=float)
-    if w.size < 2 or b.size < 2 or np.any(b == 0):
+    w = [v for v in group if isinstance(v, (int, float)) and math.isfinite(v)]
+    b = [v for v in baseline if isinstance(v, (int, float)) and math.isfinite(v)]
+    if any(v == 0 for v in b):
         return None
-    rng = as_generator(seed)
-    rw = np.median(w[rng.integers(0, w.size, (draws, w.size))], axis=1)
-    rb = np.median(b[rng.integers(0, b.size, (draws, b.size))], axis=1)
-    lo, hi = np.quantile(rw / rb, [(1 - confidence) / 2, (1 + confidence) / 2])
-    return float(lo), float(hi)
+    return _bootstrap_ratio(w, b, seed, draws, confidence, nan_as=math.nan)
 
 
-def verdict(ci, harder: str = "higher", kind: str = "value") -> str:
+def verdict(ci, harder: str = "higher") -> str:
     """harder / easier / not distinguishable, from the interval of a ratio.
 
-    ``harder`` says which direction of the metric means harder; ``kind`` is the
-    ratio's own kind ("lower bound" can only support a claim that the ratio is
-    large, "upper bound" only that it is small).
+    ``harder`` says which direction of the metric means harder.
 
     >>> verdict((1.2, 3.0)), verdict((0.02, 0.56)), verdict((0.5, 2.0))
     ('harder', 'easier', 'not distinguishable')
     >>> verdict((0.02, 0.56), harder="lower")
     'harder'
-    >>> verdict((0.02, 0.56), kind="lower bound")
-    'not distinguishable'
     """
     if ci is None:
         return SAME
     lo, hi = ci
-    big = lo > 1 and kind in ("value", "lower bound")
-    small = hi < 1 and kind in ("value", "upper bound")
-    if big:
+    if lo > 1:
         return HARDER if harder == "higher" else EASIER
-    if small:
+    if hi < 1:
         return EASIER if harder == "higher" else HARDER
     return SAME
 

@@ -308,15 +308,6 @@ def _value_of(ctx: Context, m: Measurement, ref: float, energies=None) -> tuple[
     return v, {"reference": ref, **d}
 
 
-def display(ctx: Context, v: float) -> str:
-    """A fitness value as a reader would say it."""
-    if ctx.metric == "tts":
-        return f"TTS99 {10 ** v:.3g} sweeps"
-    if ctx.metric == "success":
-        return f"success {1 - v:.4g}"
-    return f"{ctx.metric} {v:.4g}"
-
-
 # ------------------------------------------------------------------ user functions
 def load_user_function(spec: str):
     """Import ``package.module:function``; only ever called when a user names it."""

@@ -461,16 +461,22 @@ def measure_many(instance: Instance, metrics=("tts",), solvers=("sa",), *, sweep
     specs, solvers, per_spec, needed, options = _prepare(instance, metrics, solvers, sweeps, reads, options)
     br, scale, source = schedule_range(instance, beta_range, scale)
     tol = energy_tolerance(instance)
-    if pin is not None and any(s.name == "tts" for s in specs):
-        return _measure_pinned(instance, specs, solvers, per_spec, needed, int(reads), seed, br, scale, source,
-                               schedule, options, confidence, pin, reference, tol)
     batches = _run_all(instance, instance, solvers, needed, int(reads), seed, br, schedule, options)
-    ref = resolve_reference(instance, min(b.min_energy for bs in batches.values() for b in bs), reference, tol)
+    lowest = [min(b.min_energy for bs in batches.values() for b in bs)]
+    pinned = {}
+    if pin is not None and any(s.name == "tts" for s in specs):
+        pinned = _pin_runs(instance, solvers, per_spec["tts"], batches, int(reads), seed, br, scale, schedule,
+                           options, confidence, pin, _claimed_reference(instance, reference, tol), tol, lowest)
+    ref = resolve_reference(instance, lowest[0], reference, tol)
     out = _scores(instance, specs, solvers, per_spec, batches, ref, scale, tol, confidence, seed, reads=int(reads),
                   floor=1)
+    for i, s in enumerate(out):
+        if s.metric == "tts" and s.solver in pinned:
+            out[i] = _pinned_score(instance, s.solver, pinned[s.solver], ref, scale, tol, confidence, seed,
+                                   int(reads), pin)
     for s in out:
         s.extra["beta_range_source"] = source
-        s.extra.update(_scaled_range(br, scale))
+        s.extra.update(_scaled_range((s.schedule or {}).get("beta_range", br), scale))
     return out
 
 
@@ -657,28 +663,29 @@ def next_step(counts, hits, reads, pin: Pinning, base_reads: int, confidence: fl
     return None, "pinned", 0
 
 
-def _measure_pinned(instance, specs, solvers, per_spec, needed, reads, seed, br, scale, source, schedule, options,
-                    confidence, pin, reference, tol):
-    batches = _run_all(instance, instance, solvers, needed, reads, seed, br, schedule, options)
-    claimed = _claimed_reference(instance, reference, tol)
-    lowest = [min(b.min_energy for bs in batches.values() for b in bs)]
+def _pin_runs(instance, solvers, counts, batches, reads, seed, br, scale, schedule, options, confidence, pin,
+              claimed, tol, lowest) -> dict:
+    """For each solver, the pinning runs of every cold end: {solver: [(points, info), ...]}.
 
+    ``lowest`` (a one-element list) follows the lowest energy any run finds, so
+    that successes are counted against a claimed reference only while nothing
+    beats it.
+    """
     def target() -> float:
         if claimed is not None and not lowest[0] < claimed.energy - tol:
             return claimed.energy
         return lowest[0]
 
-    chosen = {}
+    out = {}
     for name in solvers:
         variants = []
-        colds = list(pin.cold_ends) or [None]
-        for cold in colds:
+        for cold in list(pin.cold_ends) or [None]:
             brc = br if cold is None else (br[0], float(cold) / scale if scale else float(cold))
             if cold is None:
-                pts = {c: list(batches[name, c]) for c in per_spec["tts"]}
+                pts = {c: list(batches[name, c]) for c in counts}
             else:
-                pts = {c: list(bs) for (_, c), bs in _run_all(instance, instance, [name], {name: per_spec["tts"]},
-                                                              reads, derive_seed(seed, "cold", float(cold)), brc,
+                pts = {c: list(bs) for (_, c), bs in _run_all(instance, instance, [name], {name: counts}, reads,
+                                                              derive_seed(seed, "cold", float(cold)), brc,
                                                               schedule, options).items()}
                 lowest[0] = min(lowest[0], min(b.min_energy for bs in pts.values() for b in bs))
             info = _bracket(instance, name, pts, reads, derive_seed(seed, "pin", float(cold or 0)), brc, schedule,
@@ -687,40 +694,30 @@ def _measure_pinned(instance, specs, solvers, per_spec, needed, reads, seed, br,
             if cold is not None:
                 info["cold_end"] = float(cold)
             variants.append((pts, info))
-        chosen[name] = variants
-    ref = resolve_reference(instance, lowest[0], reference, tol)
-    out = []
-    for name in solvers:
-        rest = [s for s in specs if s.name != "tts"]
-        base = _scores(instance, rest, [name], per_spec, batches, ref, scale, tol, confidence, seed, reads=reads,
-                       floor=1) if rest else []
-        tried = []
-        for pts, info in chosen[name]:
-            counts = tuple(sorted(pts))
-            sc = _scores(instance, [METRICS.get("tts")], [name], {(name, "tts"): counts},
-                         {(name, c): bs for c, bs in pts.items()}, ref, scale, tol, confidence, seed, reads=reads,
-                         floor=1)[0]
-            tried.append((sc, info))
-        order = sorted(range(len(tried)), key=lambda i: (tried[i][0].kind != "value", tried[i][0].value, i))
-        score, info = tried[order[0]]
-        _pin_notes(score, info, pin)
-        if len(tried) > 1:
-            score.extra["cold_ends"] = [{"cold_end": i.get("cold_end"), "beta_range": i["beta_range"],
-                                         "tts": sc.value, "kind": sc.kind, "best_sweeps": sc.extra["best_sweeps"]}
-                                        for sc, i in tried]
-            score.extra["best_cold_end"] = info.get("cold_end")
-            score.notes.append("TTS99 at the best (sweeps, beta_cold) pair of " + ", ".join(
-                f"beta_cold x scale {i.get('cold_end'):g}" for _, i in tried) + "; every pair is recorded")
-        score.schedule = {**(score.schedule or {}), "beta_range": info["beta_range"]}
-        by_name = {s.metric: s for s in base + [score]}
-        out += [by_name[s.name] for s in specs]
-    for s in out:
-        s.extra["beta_range_source"] = source
-        if s.metric == "tts":
-            s.extra.update(_scaled_range(s.extra["pin"]["beta_range"], scale))
-        else:
-            s.extra.update(_scaled_range(br, scale))
+        out[name] = variants
     return out
+
+
+def _pinned_score(instance, name, variants, ref, scale, tol, confidence, seed, reads, pin) -> Score:
+    """TTS99 at the best (sweeps, beta_cold) pair of a solver's pinning runs, with how it was pinned."""
+    tried = []
+    for pts, info in variants:
+        sc = _scores(instance, [METRICS.get("tts")], [name], {(name, "tts"): tuple(sorted(pts))},
+                     {(name, c): bs for c, bs in pts.items()}, ref, scale, tol, confidence, seed, reads=reads,
+                     floor=1)[0]
+        tried.append((sc, info))
+    order = sorted(range(len(tried)), key=lambda i: (tried[i][0].kind != "value", tried[i][0].value, i))
+    score, info = tried[order[0]]
+    _pin_notes(score, info, pin)
+    if len(tried) > 1:
+        score.extra["cold_ends"] = [{"cold_end": i.get("cold_end"), "beta_range": i["beta_range"],
+                                     "tts": sc.value, "kind": sc.kind, "best_sweeps": sc.extra["best_sweeps"]}
+                                    for sc, i in tried]
+        score.extra["best_cold_end"] = info.get("cold_end")
+        score.notes.append("TTS99 at the best (sweeps, beta_cold) pair of " + ", ".join(
+            f"beta_cold x scale {i.get('cold_end'):g}" for _, i in tried) + "; every pair is recorded")
+    score.schedule = {**(score.schedule or {}), "beta_range": info["beta_range"]}
+    return score
 
 
 def _bracket(instance, name, pts, reads, seed, br, schedule, options, pin, target, tol, confidence, lowest) -> dict:

@@ -104,11 +104,6 @@ def _entry(inst, cert, scores, path=None) -> dict:
     }
 
 
-def _median(values):
-    v = [x for x in values if x is not None]
-    return float(np.median(v)) if v else None
-
-
 def finish(breeder, result: dict, say=None) -> dict:
     """Certify, re-measure and write the hall of fame; returns the run summary (also in summary.json).
 
@@ -247,10 +242,6 @@ def _scores_of(entries, metric, solver):
             if s["metric"] == metric and s["solver"] == solver:
                 out.append(s)
     return out
-
-
-def _values(entries, metric, solver):
-    return [s["value"] for s in _scores_of(entries, metric, solver)]
 
 
 def compare(summary: dict, seed: int = 0) -> list[dict]:
