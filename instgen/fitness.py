@@ -3,10 +3,10 @@
 A fitness turns surrogate samples of one candidate into one number, **higher
 meaning harder**.  Three ways to say what you want, in order of preference:
 
-1. a named metric (``tts``, ``gap``, ``residual``, ``success``): measured with
+1. a named metric (``tts``, ``anneal-gain``, ``residual``, ``success``): measured with
    explicit schedules, pooled honestly across repeated measurements, and
    understood by the report;
-2. ``composite`` with ``weights = {tts = 1.0, gap = 0.5}``: a weighted sum of
+2. ``composite`` with ``weights = {tts = 1.0, anneal-gain = 0.5}``: a weighted sum of
    the named metrics' fitness values;
 3. your own function ``package.module:function(instance, context) -> float``
    (or ``instgen.breed(config, fitness=callable)`` from Python).  It runs only
@@ -33,7 +33,7 @@ fitness is that figure's ranking key (:func:`instgen.scoring.rank_key`):
               read more than one measurement's reads had succeeded at the
               longest anneal, ties broken by residual energy, so its rank does
               not grow with pooled reads.
-``gap``       (mean E after ``short_sweeps`` - mean E after ``long_sweeps``) / (n * scale).
+``anneal-gain``       (mean E after ``short_sweeps`` - mean E after ``long_sweeps``) / (n * scale).
 ``residual``  (mean E after ``long_sweeps`` - reference) / (n * scale).
 ``success``   1 - success probability after ``long_sweeps``.
 
@@ -325,15 +325,22 @@ def load_user_function(spec: str):
     return fn
 
 
+def _retired(where: str, name) -> None:
+    new = METRICS.renamed(name)
+    if new:
+        raise ConfigError(f"{where}: the metric {name!r} is now called {new!r}")
+
+
 def check_fitness(f: dict) -> None:
     """Validate the [fitness] table's metric, weights and samplers."""
     metric = f["metric"]
     if metric == "composite":
         w = f["weights"]
         if not w or not isinstance(w, dict):
-            raise ConfigError("[fitness] metric 'composite' needs weights, e.g. weights = { tts = 1.0, gap = 0.5 }")
+            raise ConfigError("[fitness] metric 'composite' needs weights, e.g. weights = { tts = 1.0, anneal-gain = 0.5 }")
         for name, weight in w.items():
             if name not in FITNESS_METRICS:
+                _retired("[fitness] weights", name)
                 raise ConfigError(f"[fitness] weights: unknown metric {name!r}; choose from: {', '.join(FITNESS_METRICS)}")
             if isinstance(weight, bool) or not isinstance(weight, (int, float)) or not math.isfinite(weight):
                 raise ConfigError(f"[fitness] weights.{name} must be a finite number")
@@ -342,6 +349,7 @@ def check_fitness(f: dict) -> None:
         if not module or not attr or not all(p.isidentifier() for p in module.split(".") + [attr]):
             raise ConfigError(f"[fitness] metric {metric!r} is not of the form package.module:function")
     elif metric not in FITNESS_METRICS:
+        _retired("[fitness]", metric)
         raise ConfigError(f"[fitness] unknown metric {metric!r}; choose one of: {', '.join(FITNESS_METRICS)}, "
                           "composite, or package.module:function")
     if f["sampler"] not in SAMPLERS:

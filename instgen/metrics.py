@@ -286,24 +286,24 @@ def residual_energy(energies, reference: float, n: int, *, confidence: float = 0
     return _mean_interval((np.asarray(energies, dtype=np.float64) - reference) / n, confidence)
 
 
-def anneal_gap(short_energies, long_energies, n: int, scale: float, *, confidence: float = 0.95) -> Estimate:
+def anneal_gain(short_energies, long_energies, n: int, scale: float, *, confidence: float = 0.95) -> Estimate:
     """(mean E after a short anneal - mean E after a long one) / (n * scale).
 
     Normalised per spin and by the coupling scale, so multiplying every
     coupling (and the scale with it) by a constant leaves it unchanged.  The
     interval is Welch's for a difference of means.
 
-    >>> anneal_gap([-6.0, -6.0], [-8.0, -8.0], 4, 0.5).value
+    >>> anneal_gain([-6.0, -6.0], [-8.0, -8.0], 4, 0.5).value
     1.0
     """
     from scipy import stats
 
     if n < 1 or not scale > 0:
-        raise InputError("anneal gap needs a positive number of spins and a positive coupling scale")
+        raise InputError("anneal gain needs a positive number of spins and a positive coupling scale")
     a = np.asarray(short_energies, dtype=np.float64)
     b = np.asarray(long_energies, dtype=np.float64)
     if a.size == 0 or b.size == 0:
-        raise InputError("anneal gap needs reads at both sweep counts")
+        raise InputError("anneal gain needs reads at both sweep counts")
     norm = n * scale
     diff = (a.mean() - b.mean()) / norm
     if a.size < 2 or b.size < 2:

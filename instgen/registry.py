@@ -22,6 +22,7 @@ class Registry:
     def __init__(self, kind: str):
         self.kind = kind
         self._items: dict[str, object] = {}
+        self._renamed: dict[str, str] = {}
 
     def register(self, name: str, obj=None):
         """Register ``obj`` under ``name``; usable as a decorator when obj is omitted."""
@@ -33,10 +34,20 @@ class Registry:
         self._items[name] = obj
         return obj
 
+    def rename(self, old: str, new: str) -> None:
+        """Remember that ``old`` is now called ``new``: asking for ``old`` says so."""
+        self._renamed[old] = new
+
+    def renamed(self, name) -> str | None:
+        """The current name of a retired ``name``, or None."""
+        return self._renamed.get(name) if isinstance(name, str) else None
+
     def get(self, name: str):
         try:
             obj = self._items[name]
         except (KeyError, TypeError):
+            if isinstance(name, str) and name in self._renamed:
+                raise InputError(f"the {self.kind} {name!r} is now called {self._renamed[name]!r}") from None
             raise InputError(
                 f"unknown {self.kind} {name!r}; choose one of: {', '.join(self.names())}"
             ) from None

@@ -116,10 +116,10 @@ def test_residual_energy_interval_is_the_t_interval():
     assert est.value == pytest.approx(x.mean()) and est.ci == pytest.approx(ref)
 
 
-def test_anneal_gap_interval_is_welchs():
+def test_anneal_gain_interval_is_welchs():
     a = np.array([-5.0, -6.0, -4.0, -5.5])
     b = np.array([-8.0, -7.5, -8.5])
-    est = M.anneal_gap(a, b, 4, 2.0)
+    est = M.anneal_gain(a, b, 4, 2.0)
     ref = stats.ttest_ind(a, b, equal_var=False).confidence_interval(0.95)  # reference: scipy Welch test
     assert est.value == pytest.approx((a.mean() - b.mean()) / 8)
     assert est.ci == pytest.approx((ref.low / 8, ref.high / 8))
@@ -127,11 +127,11 @@ def test_anneal_gap_interval_is_welchs():
 
 @settings(max_examples=30, deadline=None)
 @given(st.floats(0.01, 100.0))
-def test_anneal_gap_cannot_be_inflated_by_scaling(c):
+def test_anneal_gain_cannot_be_inflated_by_scaling(c):
     # Derived: energies scale with the couplings, and so does the coupling scale.
     a, b = np.array([-3.0, -2.0, -4.0]), np.array([-6.0, -5.0, -7.0])
-    plain = M.anneal_gap(a, b, 10, 1.0)
-    scaled = M.anneal_gap(c * a, c * b, 10, c)
+    plain = M.anneal_gain(a, b, 10, 1.0)
+    scaled = M.anneal_gain(c * a, c * b, 10, c)
     assert scaled.value == pytest.approx(plain.value) and scaled.ci == pytest.approx(plain.ci)
 
 

@@ -39,7 +39,7 @@ def c2():
 
 
 def test_metric_registry_lists_the_metrics():
-    assert {"tts", "success", "residual", "gap", "ground-states", "deception"} <= set(METRICS.names())
+    assert {"tts", "success", "residual", "anneal-gain", "ground-states", "deception"} <= set(METRICS.names())
     with pytest.raises(InputError, match="choose one of"):
         measure(make_instance("chimera:1", seed=1), "hardness")
 
@@ -131,7 +131,7 @@ def test_several_solvers_side_by_side(c2):
 
 def test_bad_requests_are_input_errors(c2):
     with pytest.raises(InputError, match="two sweep counts"):
-        measure(c2, "gap", sweeps=[100], reads=5)
+        measure(c2, "anneal-gain", sweeps=[100], reads=5)
     with pytest.raises(InputError, match="sweeps"):
         measure(c2, "tts", sweeps=[0, 10], reads=5)
     with pytest.raises(InputError, match="reads"):
@@ -147,14 +147,14 @@ def test_bad_requests_are_input_errors(c2):
 
 
 # ------------------------------------------------------------------ metrics
-def test_gap_is_unchanged_when_couplings_and_alphabet_scale_together(c2):
+def test_anneal_gain_is_unchanged_when_couplings_and_alphabet_scale_together(c2):
     # Derived: Metropolis acceptance depends on beta * dE only, and the default
     # beta range scales as 1/scale, so doubling J and the alphabet replays the
-    # same anneal; the gap divides by n * scale.
+    # same anneal; the anneal gain divides by n * scale.
     twice = Instance(edges=c2.edges, J=2 * c2.J, labels=c2.labels,
                      metadata={"rules": {"couplings": "levels:-2,2", "fields": "none"}})
-    a = measure(c2, "gap", sweeps=[10, 300], reads=30, seed=6)
-    b = measure(twice, "gap", sweeps=[10, 300], reads=30, seed=6)
+    a = measure(c2, "anneal-gain", sweeps=[10, 300], reads=30, seed=6)
+    b = measure(twice, "anneal-gain", sweeps=[10, 300], reads=30, seed=6)
     assert b.value == pytest.approx(a.value, abs=1e-12) and a.value > 0
     assert b.extra["short_mean"] == pytest.approx(2 * a.extra["short_mean"])
 

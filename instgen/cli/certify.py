@@ -50,7 +50,7 @@ def run(args):
     print(f"seconds        {cert.seconds:.2f}")
     print(f"ground states  {count}")
     if "lower_bound" in d and cert.status != "proven":
-        print(f"lower bound    {d['lower_bound']:.12g}  (gap {d['gap']:.6g})")
+        print(f"lower bound    {d['lower_bound']:.12g}  (optimality gap {d['gap']:.6g})")
     if "proof" in d:
         print(f"why            {d['proof']}")
     for reason in d.get("passed_over", []):

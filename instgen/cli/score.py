@@ -13,12 +13,12 @@ from ._common import add_json, add_seed, int_list, positive_int, print_json
 
 NAME = "score"
 ORDER = 30
-HELP = "measure how hard an instance is (TTS99, success probability, anneal gap, ...) with error bars"
+HELP = "measure how hard an instance is (TTS99, success probability, anneal gain, ...) with error bars"
 DESCRIPTION = """Measure hardness metrics of an instance file under surrogate samplers, with explicit
 schedules, confidence intervals and the seeds used, e.g.
 
   instgen score c4.json --metric tts --sampler sa --sweeps 10,100,1000 --reads 256 --seed 1
-  instgen score c4.json --metric tts,gap --solvers sa,pimc,tabu --reads 128
+  instgen score c4.json --metric tts,anneal-gain --solvers sa,pimc,tabu --reads 128
   instgen score c4.json --metric success --perturb 0.05 --copies 8
 
 metrics:

@@ -55,7 +55,7 @@ def pinning(cfg) -> Pinning:
                    successes=int(f["pin_successes"]), cold_ends=tuple(float(c) for c in f["cold_ends"]))
 
 
-#: Metrics whose figures are measured against the ground-state energy (the anneal gap is not).
+#: Metrics whose figures are measured against the ground-state energy (the anneal gain is not).
 USES_REFERENCE = ("tts", "success", "residual")
 
 

@@ -30,7 +30,7 @@ BOUND_MARKER = {"value": "o", "lower bound": "^", "upper bound": "v"}
 
 FITNESS_LABELS = {
     "tts": ("TTS99 at the best sweep count (sweeps)", True),
-    "gap": ("anneal gap (energy per spin / coupling scale)", False),
+    "anneal-gain": ("anneal gain (energy per spin / coupling scale)", False),
     "residual": ("residual energy (per spin / coupling scale)", False),
     "success": ("1 - success probability", False),
     "composite": ("composite fitness (weighted sum; higher = harder)", False),

@@ -63,12 +63,12 @@ def test_planted_reference_is_not_flagged(files, capsys):
 
 
 def test_json_and_side_by_side_solvers(files, capsys):
-    code, out, _ = run(["score", files["random"], "--metric", "tts,gap", "--solvers", "sa,tabu,pimc",
+    code, out, _ = run(["score", files["random"], "--metric", "tts,anneal-gain", "--solvers", "sa,tabu,pimc",
                         "--sweeps", "5,50", "--reads", "16", "--json"], capsys)
     d = json.loads(out)
     assert code == 0 and d["n"] == 32
     assert [(s["solver"], s["metric"]) for s in d["scores"]] == [
-        ("sa", "tts"), ("sa", "gap"), ("tabu", "tts"), ("tabu", "gap"), ("pimc", "tts"), ("pimc", "gap")]
+        ("sa", "tts"), ("sa", "anneal-gain"), ("tabu", "tts"), ("tabu", "anneal-gain"), ("pimc", "tts"), ("pimc", "anneal-gain")]
     pimc = d["scores"][4]
     assert pimc["schedule"]["transverse"] == 2.0 and "transverse_field" not in pimc["schedule"]
     for s in d["scores"]:
@@ -87,8 +87,9 @@ def test_options_schedule_shape_and_perturbation(files, capsys):
 @pytest.mark.parametrize("argv,needle", [
     (["score", "{dir}/missing.json"], "no such file"),
     (["score", "{random}", "--metric", "hardness"], "unknown metric"),
+    (["score", "{random}", "--metric", "gap"], "now called 'anneal-gain'"),  # retired name says its new one
     (["score", "{random}", "--sampler", "magic"], "unknown sampler"),
-    (["score", "{random}", "--metric", "gap", "--sweeps", "100"], "two sweep counts"),
+    (["score", "{random}", "--metric", "anneal-gain", "--sweeps", "100"], "two sweep counts"),
     (["score", "{random}", "--metric", "tts", "--sampler", "exact"], "lists the lowest states"),
     (["score", "{random}", "--option", "tabu.tenure=3"], "not being run"),
     (["score", "{random}", "--option", "sa.heat=3", "--sweeps", "5", "--reads", "2"], "no option"),

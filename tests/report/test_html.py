@@ -208,16 +208,16 @@ def test_same_seed_same_report(run_report, tmp_path):
 
 
 def test_run_without_stored_tts_grid_measures_it(tmp_path):
-    # A run bred for the anneal gap stores no TTS per sweep count; the report measures it
+    # A run bred for the anneal gain stores no TTS per sweep count; the report measures it
     # afresh (instgen.scoring) and says so.
-    summary = make_run(tmp_path, winners=2, baseline=2, generations=3, metric="gap")
+    summary = make_run(tmp_path, winners=2, baseline=2, generations=3, metric="anneal-gain")
     page = Page(write_report(tmp_path, reads=8, profiles=0, seed=1).read_text())
     assert len(page.images) == 3  # hall of fame vs random, fitness, TTS and residual against sweeps
     assert any("measured afresh" in c for c in page.cautions)
     rows = page.table("winners")
     for row, w in zip(rows, summary["winners"]):
-        gap = next(s for s in w["scores"] if s["metric"] == "gap" and s["solver"] == "sa")
-        assert exact(row["gap on sa (energy per spin / coupling scale)"]) == gap["value"]
+        gain = next(s for s in w["scores"] if s["metric"] == "anneal-gain" and s["solver"] == "sa")
+        assert exact(row["anneal-gain on sa (energy per spin / coupling scale)"]) == gain["value"]
 
 
 # ------------------------------------------------------------------ library report
