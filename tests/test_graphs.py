@@ -6,7 +6,8 @@ from instgen.graphs import build_graph, estimate_size
 
 
 def chimera_counts(m, n, t):
-    # Chimera C(m,n,t): 2tmn nodes; t^2 mn + t(m-1)n + tm(n-1) edges (REFERENCES.md, published formula).
+    # Chimera C(m,n,t): 2tmn nodes; t^2 mn + t(m-1)n + tm(n-1) edges (Bunyk et al., IEEE Trans. Appl.
+    # Supercond. 24, 1700110 (2014); from memory).
     return 2 * t * m * n, t * t * m * n + t * (m - 1) * n + t * m * (n - 1)
 
 
@@ -19,7 +20,7 @@ def test_chimera_counts(spec, args):
 
 
 def test_chimera_16_published_counts():
-    # C(16,16,4): 2048 nodes, 6016 edges (REFERENCES.md).
+    # C(16,16,4): 2048 nodes, 6016 edges (the formula above; from memory).
     t = build_graph("chimera:16")
     assert (t.n, t.m) == (2048, 6016)
 
@@ -35,7 +36,8 @@ def test_pegasus_counts(m, nodes, edges):
 
 @pytest.mark.parametrize("m,tt", [(6, 4), (3, 2), (2, 4)])
 def test_zephyr_counts(m, tt):
-    # Zephyr Z(m,t): 4tm(2m+1) nodes; 2t((8t+8)m^2 - 2m - 3) edges for m > 1; degree <= 4t+4 (REFERENCES.md).
+    # Zephyr Z(m,t): 4tm(2m+1) nodes; 2t((8t+8)m^2 - 2m - 3) edges for m > 1; degree <= 4t+4 (published with the Zephyr
+    # family, Boothby, King & Raymond 2021 technical report; from memory).
     t = build_graph(f"zephyr:{m},{tt}")
     assert t.n == 4 * tt * m * (2 * m + 1)
     assert t.m == 2 * tt * ((8 * tt + 8) * m * m - 2 * m - 3)

@@ -59,7 +59,7 @@ def test_energy_formula_by_hand():
 @settings(max_examples=60, deadline=None)
 @given(seed=st.integers(0, 2**31 - 1))
 def test_gauge_invariance(seed):
-    # E'(s*g) = E(s) for any gauge g (spin-reversal symmetry, REFERENCES.md [derived]).
+    # E'(s*g) = E(s) for any gauge g (spin-reversal symmetry; derived, common practice).
     rng = np.random.default_rng(seed)
     inst = make_instance("chimera:1", "gaussian", "gaussian", seed=seed % 1000)
     g = random_gauge(inst.n, rng)

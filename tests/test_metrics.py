@@ -18,7 +18,7 @@ def test_tts_worked_values():
     # Definition and worked value from Ronnow et al., Science 345, 420 (2014):
     # R99 = ln(0.01)/ln(0.5) = 6.644 at p = 0.5.
     assert M.repetitions(0.5) == pytest.approx(6.644, abs=5e-4)
-    # Same formula, p = 0.01 -> 458.2 (derived in REFERENCES.md).
+    # Same formula (Ronnow et al., Science 345, 420 (2014)), p = 0.01 -> 458.2 (derived).
     assert M.tts(0.01, 1.0) == pytest.approx(458.2, abs=0.05)
     assert M.tts(0.5, 1000) == pytest.approx(6643.9, abs=0.1)
 

@@ -17,7 +17,7 @@ def planted_chimera(seed=3):
     """A ferromagnet on chimera:2 hidden by a random gauge: its planted state is a ground state.
 
     Derived: every coupling of a ferromagnet is satisfied by all-up, and a gauge
-    transformation preserves energies (REFERENCES.md, gauge section).
+    transformation preserves energies (derived; common practice).
     """
     topo = make_instance("chimera:2", "pm1", seed=0)
     ferro = Instance(edges=topo.edges, J=-np.ones(topo.m), labels=topo.labels, graph=topo.graph,

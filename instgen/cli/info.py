@@ -61,12 +61,12 @@ def run(args):
     print(f"file        {args.file}")
     print(f"graph       {d['graph'] or '(none given)'}")
     print(f"spins       {d['n']}")
-    print(f"couplings   {d['m']}  (values {d['coupling_min']:g} .. {d['coupling_max']:g}, {d['distinct_couplings']} distinct)")
+    print(f"couplers    {d['m']}  (coupling values {d['coupling_min']:g} .. {d['coupling_max']:g}, {d['distinct_couplings']} distinct)")
     if "coupling_counts" in d:
         print("            " + ", ".join(f"{v}: {c}" for v, c in d["coupling_counts"].items()))
     if d["rules"]:
         r = d["rules"]
-        print(f"alphabet    couplings {r.get('couplings')}, fields {r.get('fields')}"
+        print(f"alphabet    coupling {r.get('couplings')}, field {r.get('fields')}"
               + (f", range {r['coupling_range']:g}" if r.get("coupling_range") else "")
               + (f", precision {r['precision']:g}" if r.get("precision") else ""))
     print(f"fields      {'yes' if d['has_fields'] else 'none'}")

@@ -211,7 +211,7 @@ def _show(args):
     print(f"fingerprint   {e.fingerprint}")
     print(f"file          {e.path}")
     print(f"graph         {e.graph or '(none given)'}  n={e.n}  m={e.m}")
-    print(f"alphabet      couplings {e.couplings or 'unknown'}, fields {e.fields or ('yes' if e.has_fields else 'none')}")
+    print(f"alphabet      coupling {e.couplings or 'unknown'}, field {e.fields or ('yes' if e.has_fields else 'none')}")
     print(f"optimum       {e.optimum_text}")
     if c is not None:
         count = "unknown" if c.ground_states is None else str(c.ground_states)

@@ -33,5 +33,5 @@ def run(args):
                          coupling_range=args.coupling_range, field_range=args.field_range,
                          precision=args.precision)
     path = save_instance(inst, args.output, provenance={"seed": args.seed})
-    print(f"wrote {path}: {inst.n} spins, {inst.m} couplings on {inst.graph}")
+    print(f"wrote {path}: {inst.n} spins, {inst.m} couplers on {inst.graph}")
     return 0

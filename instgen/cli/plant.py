@@ -100,7 +100,7 @@ def run(args):
     if args.json:
         print_json(summary)
         return 0
-    print(f"wrote {path}: {args.method} on {inst.graph}, {inst.n} spins, {inst.m} couplings")
+    print(f"wrote {path}: {args.method} on {inst.graph}, {inst.n} spins, {inst.m} couplers")
     print(f"planted energy {con['planted_energy']:.12g} "
           + ("(proof checked: status planted)" if cert else "(proof not checked: --no-certificate)"))
     return 0

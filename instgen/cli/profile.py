@@ -61,7 +61,7 @@ def run(args):
         print_json({**prof.to_dict(), "files": {k: str(v) for k, v in files.items()}})
         return 0
     st, ref, fit = prof.settings, prof.reference, prof.fit
-    print(f"instance   {path}: {inst.n} spins, {inst.m} couplings" + (f" on {inst.graph}" if inst.graph else ""))
+    print(f"instance   {path}: {inst.n} spins, {inst.m} couplers" + (f" on {inst.graph}" if inst.graph else ""))
     print(f"anneal     path-integral surrogate, {st['reads']} replicas, {st['sweeps']} sweeps, transverse field "
           f"{st['transverse']:g} -> 0, beta {st['temperature_beta']:.4g} ({st['beta_range_source']}); "
           f"seed {st['seed']}")

@@ -202,7 +202,7 @@ def describe_schedule(d: dict) -> str:
 
 
 def _print(path, inst, scores):
-    print(f"instance   {path}: {inst.n} spins, {inst.m} couplings" + (f" on {inst.graph}" if inst.graph else ""))
+    print(f"instance   {path}: {inst.n} spins, {inst.m} couplers" + (f" on {inst.graph}" if inst.graph else ""))
     first = scores[0]
     print(f"reference  {_num(first.reference)} ({first.extra.get('reference_source')}; {first.reference_status})")
     if first.reference_status not in ("planted", "proven"):

@@ -214,7 +214,7 @@ def _fmt(v) -> str:
 def _table(picks, metric, solver, pairs) -> str:
     buf = _io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
-    w.writerow(["position", "id", "file", "graph", "n", "m", "fields", "couplings", "optimum", "optimum_status",
+    w.writerow(["position", "id", "file", "graph", "spins", "couplers", "field_alphabet", "coupling_alphabet", "optimum", "optimum_status",
                 "optimum_method", "ground_states", "size_group", "hardness_quantile", "metric", "solver", "value",
                 "ci_low", "ci_high", *[f"{m}[{s}]" if s else m for m, s in pairs], "fingerprint"])
     for k, p in enumerate(picks, 1):

@@ -530,7 +530,7 @@ def plant_loops(graph, density: float = 0.3, seed=None, *, min_length: int = 4, 
     ----------
     graph : str or Topology
     density : float
-        Loops per spin, alpha = loops / n (> 0).
+        Loops per spin (> 0).
     seed : int, optional
     min_length, max_length : int
         Allowed loop lengths (see :func:`random_loop`).

@@ -73,7 +73,7 @@ def library_page(folder: Path) -> str:
             png, "library hardness against size",
             "Latest measurement of each entry per solver. Filled markers: certified optimum; open markers: "
             "optimum not certified; triangles: bounds; bars: confidence intervals."))
-    head = ["id", "graph", "spins", "couplings", "alphabet", "ground-state energy", "how it is known", "tags",
+    head = ["id", "graph", "spins", "couplers", "alphabet", "ground-state energy", "how it is known", "tags",
             "added"] + [score_head(m, s, [latest_scores(e).get((m, s)) and latest_scores(e)[m, s].to_dict()
                                           for e in entries]) for m, s in pairs]
     rows = []

@@ -77,7 +77,7 @@ def _winners_table(summary: dict) -> str:
     run = summary["run"]
     metrics = sorted({s["metric"] for e in summary["winners"] for s in e["scores"]})
     pairs = [(m, s) for m in metrics for s in run["solvers"]]
-    head = ["#", "file", "spins", "couplings", "ground-state energy", "how it is known", "certify time (s)",
+    head = ["#", "file", "spins", "couplers", "ground-state energy", "how it is known", "certify time (s)",
             "ground states found", "found in generation"]
     planted = any(e.get("construction") for e in summary["winners"])
     head += ["planted family"] if planted else []
@@ -99,7 +99,7 @@ def _baseline_table(summary: dict) -> str:
     base = summary["baseline"]["instances"]
     metrics = sorted({s["metric"] for e in base for s in e["scores"]})
     pairs = [(m, s) for m in metrics for s in run["solvers"]]
-    head = ["#", "spins", "couplings", "ground-state energy", "how it is known"] + [
+    head = ["#", "spins", "couplers", "ground-state energy", "how it is known"] + [
         score_head(m, s, [_score(e, m, s) for e in base]) for m, s in pairs]
     rows = [[num_cell(i), num_cell(e["n"]), num_cell(e["m"]), num_cell(e["certificate"]["energy"], 10),
              status_cell(e["certificate"])] + [score_cell(_score(e, m, s)) for m, s in pairs]
@@ -137,7 +137,7 @@ def _comparison_table(summary: dict) -> str:
 
 
 SETTING_NAMES = {"name": "run name", "id": "run id", "seed": "run seed", "graph": "graph", "n": "spins",
-                 "m": "couplings", "metric": "fitness metric", "sampler": "search sampler",
+                 "m": "couplers", "metric": "fitness metric", "sampler": "search sampler",
                  "solvers": "solvers measured on", "sweeps": "sweep counts",
                  "beta_range": "inverse temperature range (hot, cold)", "preset_hash": "preset checksum",
                  "folder": "run folder", "search_solvers": "further search solvers (fitness is the least over all)"}
@@ -210,8 +210,8 @@ def run_page(folder: Path, *, reads: int, profiles: int, profile_reads: int, pro
     notes: list[str] = []
     sections = []
     winners = summary["winners"]
-    lead = (f"{len(winners)} winner(s) bred on <b>{esc(run['graph'])}</b> ({run['n']} spins, {run['m']} couplings, "
-            f"couplings {esc((run.get('rules') or {}).get('couplings', '?'))}) for <b>{esc(run['metric'])}</b> "
+    lead = (f"{len(winners)} winner(s) bred on <b>{esc(run['graph'])}</b> ({run['n']} spins, {run['m']} couplers, "
+            f"alphabet {esc((run.get('rules') or {}).get('couplings', '?'))}) for <b>{esc(run['metric'])}</b> "
             f"on the {esc(run['sampler'])} surrogate. Stopped after {summary['generations']} generations "
             f"({esc(summary['stopped'])}), {summary['evaluations']} evaluations in {fmt(summary['elapsed'], 3)} s. "
             f"Winners are re-measured on fresh seeds against their certified energy.")

@@ -85,8 +85,8 @@ def print_summary(summary: dict, stream=None) -> None:
     out = stream or sys.stdout
     run = summary["run"]
     w = out.write
-    w(f"\nrun {run['name']} on {run['graph']} ({run['n']} spins, {run['m']} couplings, "
-      f"couplings {run['rules']['couplings']}): stopped after {summary['generations']} generations "
+    w(f"\nrun {run['name']} on {run['graph']} ({run['n']} spins, {run['m']} couplers, "
+      f"alphabet {run['rules']['couplings']}): stopped after {summary['generations']} generations "
       f"({summary['stopped']}), {summary['evaluations']} evaluations in {summary['elapsed']:.0f} s\n")
     searched = run["sampler"] + ("".join(f", {x}" for x in run.get("search_solvers", [])))
     least = " (the least over these)" if run.get("search_solvers") else ""

@@ -22,7 +22,7 @@ def files(tmp_path_factory):
     d = tmp_path_factory.mktemp("score")
     rand = save_instance(make_instance("chimera:2", "pm1", seed=1), d / "c2.json")
     # A gauged ferromagnet: its planted all-up state (in the original gauge) is a
-    # ground state, since a gauge transformation keeps every energy (REFERENCES.md).
+    # ground state, since a gauge transformation keeps every energy (derived; common practice).
     topo = make_instance("chimera:2", "pm1", seed=0)
     ferro = Instance(edges=topo.edges, J=-np.ones(topo.m), labels=topo.labels, graph=topo.graph,
                      planted=np.ones(topo.n), metadata={"rules": {"couplings": "pm1", "fields": "none"}})

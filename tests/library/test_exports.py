@@ -146,7 +146,7 @@ def antiferromagnet(G: nx.Graph) -> Instance:
     return with_certificate(inst, exact_certificate(inst))
 
 
-# max-cut values: REFERENCES.md "Max-cut, for QUBO/Ising round trips" [textbook];
+# max-cut values of named graphs (Petersen 12, K5 6, K6 9, odd cycle n-1, bipartite m): textbook values, from memory;
 # unit antiferromagnet: E0 = m - 2 * maxcut
 @pytest.mark.parametrize("G,maxcut", [
     (nx.petersen_graph(), 12), (nx.cycle_graph(7), 6), (nx.cycle_graph(9), 8),

@@ -23,7 +23,8 @@ def on_graph(G: nx.Graph, J, h=None) -> Instance:
 @settings(max_examples=20, deadline=None)
 @given(gauge_seed=st.integers(0, 2**32 - 1), fields=st.booleans())
 def test_any_gauge_gives_the_same_fingerprint(gauge_seed, fields):
-    # gauge invariance of every energy: REFERENCES.md "Gauge (spin-reversal) transformation" [derived]
+    # gauge invariance of every energy: s_i -> g_i s_i, h_i -> g_i h_i, J_ij -> g_i g_j J_ij leaves each term
+    # unchanged (derived; common practice in annealer benchmarking)
     inst = make_instance("chimera:2", "gaussian", "gaussian" if fields else "none", seed=7)
     other = inst.gauge(random_gauge(inst.n, seed=gauge_seed))
     assert fingerprint(other) == fingerprint(inst)
@@ -69,8 +70,8 @@ def cycle_signature(G: nx.Graph, signs: dict) -> tuple:
                          ids=["K4", "C5", "petersen"])
 def test_same_fingerprint_exactly_when_every_cycle_product_agrees(G):
     # For +-1 couplings without fields on a connected graph, two instances are gauge
-    # equivalent iff the coupling products around all cycles agree (REFERENCES.md
-    # "products of couplings around any cycle (frustration) are invariant" [derived]);
+    # equivalent iff the coupling products around all cycles agree (products of couplings
+    # around any cycle, the frustration, are gauge invariant; derived, common practice);
     # there are 2^(m - n + 1) classes, one per frustration pattern of a cycle basis.
     edges = sorted(tuple(sorted(e)) for e in G.edges)
     m, n = len(edges), G.number_of_nodes()

@@ -59,7 +59,7 @@ def test_loops_are_simple_cycles_of_the_graph():
 
 
 def test_a_single_loop_is_frustrated_in_every_gauge():
-    # product of couplings around a cycle is gauge invariant (REFERENCES.md, derived);
+    # product of couplings around a cycle is gauge invariant (derived; common practice);
     # a frustrated cycle has prod(-J) < 0
     topo = topology("chimera:2")
     for seed in range(5):

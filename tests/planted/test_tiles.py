@@ -43,7 +43,7 @@ def test_periodic_tiles_cover_every_edge_once():
 
 
 def test_every_square_tile_is_frustrated_in_the_final_gauge():
-    # frustration, prod(-J) < 0 around a plaquette, is gauge invariant (REFERENCES.md, derived)
+    # frustration, prod(-J) < 0 around a plaquette, is gauge invariant (derived; common practice)
     inst = plant_tiles("square:8,periodic", seed=5)
     for t in tiles_of(inst):
         assert np.prod(-inst.J[t["edges"]]) < 0

@@ -118,7 +118,7 @@ def test_winner_table_holds_the_summary_numbers(run_report):
         assert row["file"][0] == w["file"]
         assert exact(row["ground-state energy"]) == cert["energy"]
         assert row["ground-state energy"][0] == format(cert["energy"], ".10g")
-        assert exact(row["spins"]) == w["n"] and exact(row["couplings"]) == w["m"]
+        assert exact(row["spins"]) == w["n"] and exact(row["couplers"]) == w["m"]
         assert ("NOT proven" in row["how it is known"][0]) == (cert["status"] == "unverified")
         assert "confirmed TTS99 (sweeps)" not in row  # search-grid ranking keys stay in summary.json
         for solver in summary["run"]["solvers"]:
