@@ -219,7 +219,7 @@ class Breeder:
     def _individual(self, genome, parents=()) -> Individual:
         J, h, _, _ = genome.couplings()
         canon = fingerprint(self.ctx.instance(J, h))  # the library's gauge- and order-invariant identity
-        return Individual(genome, genome.key(), canon, self.generation, list(parents))
+        return Individual(genome, genome.key(), canon, self.generation + 1, list(parents))
 
     # ---------------------------------------------------------- measuring
     def _task(self, ind_genome, seed: int, reads: int) -> dict:
@@ -256,7 +256,7 @@ class Breeder:
         for ind, m in zip(picks, results):
             self.confirmed_keys.add(ind.key)
             conf, details = value(self.ctx, m, self._reference(ind.genome, stage="confirm"))
-            fam = Famous(ind.genome, ind.key, ind.canon, self.generation, ind.parents, ind.fitness, conf,
+            fam = Famous(ind.genome, ind.key, ind.canon, self.generation + 1, ind.parents, ind.fitness, conf,
                          _slim(details))
             if any(f.canon == fam.canon for f in self.hall):
                 continue
@@ -442,7 +442,7 @@ class Breeder:
         fit = np.array([i.fitness for i in self.population])
         evals = len(self.population) + len(entered)
         return {
-            "generation": self.generation, "best": float(fit.max()), "median": float(np.median(fit)),
+            "generation": self.generation + 1, "best": float(fit.max()), "median": float(np.median(fit)),
             "q25": float(np.quantile(fit, 0.25)), "q75": float(np.quantile(fit, 0.75)),
             "best_confirmed": self.hall[0].confirmed if self.hall else None,
             "confirmed_this_generation": [f.confirmed for f in entered],

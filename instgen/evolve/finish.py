@@ -219,7 +219,10 @@ def _start(breeder, say) -> dict:
 
 
 def stall(history: list[dict]) -> dict:
-    """Did the search improve on its start?  The generation-0 median against the confirmed best."""
+    """Did the search improve on its start?  The first generation's median against the confirmed best.
+
+    Generations are numbered from 1 (the unbred start), as on screen and in log.jsonl.
+    """
     if not history:
         return {"stalled": None}
     start_median = history[0]["median"]
@@ -231,8 +234,9 @@ def stall(history: list[dict]) -> dict:
             last_gain = i
     best = confirmed[-1]
     stalled = first is not None and last_gain == first and len(history) > 2
-    return {"start_median": start_median, "best_confirmed": best, "first_confirmed_generation": first,
-            "last_improvement_generation": last_gain, "stalled": stalled, "generations": len(history)}
+    number = (lambda i: None if i is None else int(history[i].get("generation", i + 1)))
+    return {"start_median": start_median, "best_confirmed": best, "first_confirmed_generation": number(first),
+            "last_improvement_generation": number(last_gain), "stalled": stalled, "generations": len(history)}
 
 
 def _scores_of(entries, metric, solver):
@@ -309,7 +313,7 @@ def cautions(summary: dict) -> list[str]:
     prog = summary.get("search_progress") or {}
     if prog.get("stalled"):
         out.append(f"The search stalled: the confirmed best has not improved since generation "
-                   f"{prog['first_confirmed_generation'] + 1}, its first confirmation.")
+                   f"{prog['first_confirmed_generation']}, its first confirmation.")
     out.append("Hardness was measured on " + ", ".join(summary["run"]["solvers"]) + " only; other solvers may "
                "find these instances easier or harder.")
     if not summary["winners"]:

@@ -97,7 +97,7 @@ def fitness_figure(records: list[dict], metric: str, sampler: str = ""):
     with _style():
         fig = _figure(7.5, 4.2)
         ax = fig.add_subplot()
-        g = np.array([r["generation"] + 1 for r in records], dtype=float)
+        g = np.array([r["generation"] for r in records], dtype=float)
         col = lambda key: np.array([conv(r[key]) if _finite(r.get(key)) else np.nan for r in records])
         ax.fill_between(g, col("q25"), col("q75"), color=PALETTE["sky"], alpha=0.35, lw=0,
                         label="search: middle half of the population")

@@ -51,7 +51,7 @@ class Progress:
                   f"confirmed {fitness_text(self.cfg, r['best_confirmed'])} · "
                   f"{eps:.1f} eval/s" if eps else "")
         if self._bar is not None:
-            self._bar.update(self._task, completed=r["generation"] + 1, status=status)
+            self._bar.update(self._task, completed=r["generation"], status=status)
         else:
-            self.stream.write(f"generation {r['generation'] + 1}/{self.total}: {status}\n")
+            self.stream.write(f"generation {r['generation']}/{self.total}: {status}\n")
             self.stream.flush()

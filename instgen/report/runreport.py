@@ -88,7 +88,7 @@ def _winners_table(summary: dict) -> str:
         gen = e.get("generation")
         rows.append([num_cell(e["rank"]), text_cell(e["file"]), num_cell(e["n"]), num_cell(e["m"]),
                      num_cell(c["energy"], 10), status_cell(c), num_cell(c.get("seconds"), 3),
-                     num_cell(c.get("ground_states")), num_cell(None if gen is None else gen + 1)]
+                     num_cell(c.get("ground_states")), num_cell(gen)]
                     + ([text_cell(e.get("construction") or "–")] if planted else [])
                     + [score_cell(_score(e, m, s)) for m, s in pairs])
     return table(head, rows, "winners")
@@ -110,9 +110,9 @@ def _baseline_table(summary: dict) -> str:
 def _stall_words(prog: dict) -> str:
     if prog.get("stalled"):
         return (f"The search stalled: the confirmed best has not improved since generation "
-                f"{prog['first_confirmed_generation'] + 1}, its first confirmation.")
+                f"{prog['first_confirmed_generation']}, its first confirmation.")
     if prog.get("last_improvement_generation") is not None:
-        return f"The confirmed best last improved in generation {prog['last_improvement_generation'] + 1}."
+        return f"The confirmed best last improved in generation {prog['last_improvement_generation']}."
     return ""
 
 

@@ -154,7 +154,8 @@ def test_a_search_blind_beyond_its_grid_is_told_so():
                "asked": {"count": 4, "hall_of_fame": 8, "confirmed": 9, "kept": 8}, "never_solved_on_confirmation": 8}
     assert any(c.startswith("8 of 8 hall-of-fame entries were never solved") for c in cautions(summary))
     # a confirmed best that never moves after its first confirmation is a stall
-    flat = [{"median": 1.0, "best_confirmed": None}] + [{"median": 1.0, "best_confirmed": 2.0}] * 5
-    assert stall(flat)["stalled"] and stall(flat)["first_confirmed_generation"] == 1
-    rising = [{"median": 1.0, "best_confirmed": v} for v in (None, 2.0, 2.0, 3.0)]
-    assert not stall(rising)["stalled"] and stall(rising)["last_improvement_generation"] == 3
+    # (generations are numbered from 1, the unbred start, in log.jsonl as on screen)
+    flat = [{"generation": g, "median": 1.0, "best_confirmed": None if g == 1 else 2.0} for g in range(1, 7)]
+    assert stall(flat)["stalled"] and stall(flat)["first_confirmed_generation"] == 2
+    rising = [{"generation": g, "median": 1.0, "best_confirmed": v} for g, v in enumerate((None, 2.0, 2.0, 3.0), 1)]
+    assert not stall(rising)["stalled"] and stall(rising)["last_improvement_generation"] == 4

@@ -245,7 +245,7 @@ def test_a_disk_that_fills_during_breeding_keeps_the_last_checkpoint(tmp_path, c
         return real_open(path, mode, *args, **kwargs)
 
     def progress(record):
-        if record["generation"] == 2 and full["once"]:
+        if record["generation"] == 3 and full["once"]:  # the third generation, numbered from 1
             full["now"], full["once"] = True, False
 
     monkeypatch.setattr(os, "fsync", fsync) if where == "checkpoint" else monkeypatch.setattr(

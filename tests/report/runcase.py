@@ -84,7 +84,7 @@ def make_run(folder: Path, winners: int = 3, baseline: int = 2, generations: int
     log = []
     for g in range(generations):
         best = 1.2 + 0.15 * g
-        log.append({"generation": g, "best": best, "median": best - 0.3, "q25": best - 0.45, "q75": best - 0.15,
+        log.append({"generation": g + 1, "best": best, "median": best - 0.3, "q25": best - 0.45, "q75": best - 0.15,
                     "best_confirmed": None if g == 0 else best - 0.1,
                     "confirmed_this_generation": [] if g == 0 else [best - 0.1, best - 0.25],
                     "hall_size": min(g * 2, 6), "evaluations": 40 * (g + 1), "seconds": 2.5,

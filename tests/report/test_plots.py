@@ -60,7 +60,7 @@ def test_fitness_figure_draws_the_log(run_folder):
     best = next(line for line in ax.get_lines() if line.get_label() == "search: best")
     # TTS fitness is log10 of TTS99 in sweeps; the plot shows sweeps on a log axis
     assert np.allclose(best.get_ydata(), [10 ** r["best"] for r in records])
-    assert np.allclose(best.get_xdata(), [r["generation"] + 1 for r in records])
+    assert np.allclose(best.get_xdata(), [r["generation"] for r in records])
     assert ax.get_yscale() == "log" and "(sweeps)" in ax.get_ylabel() and ax.get_xlabel() == "generation"
     assert _colours(fig) <= OKABE_ITO
     _save(fig, "fitness.png")
