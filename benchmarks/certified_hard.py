@@ -83,7 +83,7 @@ def _search(out: str, budget: float, step: int, seed: int, graph: str) -> dict:
     while spent["cpu"] + _cpu() - c0 < budget:
         done += step
         cfg = override(base, [f"search.generations={done}", "search.time_budget=1e9", f"run.seed={seed}",
-                              f'run.output="{out}"', f'graph.spec="{graph}"'])
+                              f'run.out="{out}"', f'graph.spec="{graph}"'])
         result = Breeder(cfg, out).run(resume=resume)
         resume = True
         ledger.write_text(json.dumps({"cpu": spent["cpu"] + _cpu() - c0, "wall": spent["wall"] + time.perf_counter()
@@ -98,7 +98,7 @@ def _search(out: str, budget: float, step: int, seed: int, graph: str) -> dict:
 
 
 def bred_instances(out: str, count: int) -> list:
-    """The ``count`` best distinct hall-of-fame instances of the search in ``out``, with their proofs checked."""
+    """The ``count`` best distinct winners of the search in ``out``, with their proofs checked."""
     from instgen.certify import attach_certificate, certify
     from instgen.evolve.checkpoint import load_checkpoint
     from instgen.evolve.engine import Breeder, Famous

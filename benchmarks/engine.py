@@ -46,7 +46,7 @@ def settings(args):
         "fitness": {"metric": "tts", "sampler": args.sampler, "sweeps": args.sweeps, "reads": args.reads,
                     "confirm_reads": 4 * args.reads, "reference": args.reference},
         "search": {"population": 16, "generations": 10**6, "elites": 3, "workers": 1, "time_budget": args.budget,
-                   "confirm_top": 2, "hall_of_fame": args.top, "mutation_rate": 0.03},
+                   "confirm_top": 2, "winners": args.top, "mutation_rate": 0.03},
         "library": {"count": 0, "baseline": 0},
     })
 

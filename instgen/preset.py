@@ -88,7 +88,7 @@ SCHEMA: dict[str, dict[str, tuple]] = {
     "run": {
         "name": (str, "run", None),
         "seed": (int, 0, _nonneg),
-        "output": (str, "outputs/run", _nonempty),
+        "out": (str, "outputs/run", _nonempty),
         "format_version": (int, FORMAT_VERSION, _pos),
         "description": (str, "", None),
     },
@@ -145,19 +145,22 @@ SCHEMA: dict[str, dict[str, tuple]] = {
         "target": ((int, float), None, None),
         "stall": (int, None, _pos),
         "confirm_top": (int, 2, _count(0, 1000)),
-        "hall_of_fame": (int, 8, _count(1, 100_000)),
+        "winners": (int, 8, _count(1, 100_000)),
         "workers": (int, 0, _nonneg),
         "immigrants": ((int, float), 0.1, _prob),
     },
     "library": {
         "path": (str, "", None),
-        "count": (int, 8, _count(0, 100_000)),
         "certify": (str, "auto", None),
         "time_limit": ((int, float), 60.0, _pos),
         "baseline": (int, 8, _count(0, 10_000)),
         "tags": (list, [], _tag_list),
     },
 }
+
+#: Keys that were renamed, and the key that replaced them (an old preset is told, not silently ignored).
+RENAMED = {("run", "output"): "[run] out", ("search", "hall_of_fame"): "[search] winners",
+           ("library", "count"): "[search] winners"}
 
 REFERENCES = ("auto", "planted", "certified", "confirm-certified", "best-found")
 
@@ -241,6 +244,8 @@ def validate(raw: dict, where: str = "preset") -> dict:
         if not isinstance(values, dict):
             raise ConfigError(f"{where}: [{table}] must be a table of settings")
         for key, value in values.items():
+            if (table, key) in RENAMED:
+                raise ConfigError(f"{where}: [{table}] {key} is now {RENAMED[table, key]}")
             if key not in SCHEMA[table]:
                 raise ConfigError(f"{where}: unknown key {key!r} in [{table}]; valid keys: {', '.join(SCHEMA[table])}")
             cfg[table][key] = _check_value(table, key, value)
@@ -320,9 +325,9 @@ def override(cfg: dict, assignments) -> dict:
 
 def with_output(cfg: dict, out) -> dict:
     """``cfg`` with its run folder moved to ``out``; a ``[library] path`` that lies inside the
-    preset's own ``[run] output`` folder moves along, to the same place inside ``out``.
+    preset's own ``[run] out`` folder moves along, to the same place inside ``out``.
 
-    >>> cfg = validate({"run": {"output": "outputs/demo"}, "library": {"path": "outputs/demo/library"}})
+    >>> cfg = validate({"run": {"out": "outputs/demo"}, "library": {"path": "outputs/demo/library"}})
     >>> with_output(cfg, "A/run")["library"]["path"]
     'A/run/library'
     >>> with_output(validate({"library": {"path": "shared/lib"}}), "A/run")["library"]["path"]
@@ -331,11 +336,11 @@ def with_output(cfg: dict, out) -> dict:
     import os
 
     new = copy.deepcopy(cfg)
-    new["run"]["output"] = str(out)
+    new["run"]["out"] = str(out)
     library = cfg["library"]["path"]
     if library:
         try:
-            inner = Path(os.path.abspath(library)).relative_to(os.path.abspath(cfg["run"]["output"]))
+            inner = Path(os.path.abspath(library)).relative_to(os.path.abspath(cfg["run"]["out"]))
         except ValueError:  # elsewhere: a library shared between runs stays where the preset says
             inner = None
         if inner is not None:

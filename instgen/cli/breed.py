@@ -25,7 +25,7 @@ Any preset value can be overridden with --set table.key=value (TOML syntax).
 def add_arguments(p):
     p.add_argument("preset", help="preset file (TOML)")
     p.add_argument("--out", metavar="DIR",
-                   help="run folder (default: the preset's [run] output); a [library] path inside the preset's "
+                   help="run folder (default: the preset's [run] out); a [library] path inside the preset's "
                         "own output folder moves along, to the same place inside DIR")
     p.add_argument("--seed", type=nonneg_int, help="run seed (overrides [run] seed)")
     p.add_argument("--graph", metavar="SPEC", help="graph spec (overrides [graph] spec)")
@@ -88,7 +88,7 @@ def run(args):
             print(f"after the search: {text} ...", file=sys.stderr, flush=True)
 
     with show:
-        summary = breed(cfg, out=cfg["run"]["output"], executor=executor, resume=args.resume, progress=show.update,
+        summary = breed(cfg, out=cfg["run"]["out"], executor=executor, resume=args.resume, progress=show.update,
                         say=say)
     if not args.no_report:
         from ..report.html import write_report
@@ -96,7 +96,7 @@ def run(args):
         if not (args.quiet or args.json):
             print("writing the report (measures residual energies and an anneal profile afresh) ...",
                   file=sys.stderr)
-        summary["report"] = str(write_report(cfg["run"]["output"]))
+        summary["report"] = str(write_report(cfg["run"]["out"]))
     if args.json:
         print_json(summary)
     elif not args.quiet:

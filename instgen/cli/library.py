@@ -23,8 +23,8 @@ DESCRIPTION = f"""The benchmark library: a folder with an SQLite index and one f
   instgen library list --certified --graph chimera:4
   instgen library list --metric tts --min 1e4 --sort value --reverse
   instgen library show 3f2a9c1b
-  instgen library export 3f2a9c1b --format qubo-mtx --to out/
-  instgen library suite --count 12 --to suite/
+  instgen library export 3f2a9c1b --format qubo-mtx --out out/
+  instgen library suite --count 12 --out suite/
   instgen library check-suite suite/
 
 The folder is --library DIR, else ${ENV_VAR}, else ./library; `add` creates it.
@@ -111,14 +111,14 @@ def add_arguments(p):
     ex.add_argument("ids", nargs="*", metavar="ID", help="entries to export (or select with filters / --all)")
     ex.add_argument("--all", action="store_true", help="every entry matching the filters")
     ex.add_argument("--format", action="append", default=[], metavar="F", help=fmt_help)
-    ex.add_argument("--to", required=True, type=Path, metavar="DIR", help="folder to write into")
+    ex.add_argument("-o", "--out", required=True, type=Path, metavar="DIR", help="folder to write into")
     ex.add_argument("--overwrite", action="store_true", help="replace files that already exist")
     _filters(ex, sort=False)
     ex.set_defaults(_action=_export)
 
     su = sub.add_parser("suite", parents=[common], help="pick K entries stratified by size and hardness")
     su.add_argument("--count", type=positive_int, required=True, metavar="K", help="number of instances")
-    su.add_argument("--to", required=True, type=Path, metavar="DIR", help="new or empty folder to write")
+    su.add_argument("-o", "--out", required=True, type=Path, metavar="DIR", help="new or empty folder to write")
     su.add_argument("--size-groups", type=positive_int, default=4, metavar="G", help="size groups (default 4)")
     su.add_argument("--format", action="append", default=[], metavar="F", help=fmt_help + " (json always)")
     su.add_argument("--include-uncertified", action="store_true", help="allow entries whose optimum is not proven")
@@ -280,17 +280,17 @@ def _export(args):
             ids = [e.fingerprint for e in lib.list(**filters)]
         else:
             raise InputError("name the entries to export (IDs), or select them with filters or --all")
-        written = lib.export(ids, formats, args.to, overwrite=args.overwrite)
+        written = lib.export(ids, formats, args.out, overwrite=args.overwrite)
     for p in written:
         print(p)
-    print(f"wrote {len(written)} file(s) for {len(ids)} entr{'y' if len(ids) == 1 else 'ies'} into {args.to}")
+    print(f"wrote {len(written)} file(s) for {len(ids)} entr{'y' if len(ids) == 1 else 'ies'} into {args.out}")
     return 0
 
 
 def _suite(args):
     formats = _formats(args.format)
     with _open(args) as lib:
-        result = make_suite(lib, args.count, args.to, size_groups=args.size_groups, formats=formats,
+        result = make_suite(lib, args.count, args.out, size_groups=args.size_groups, formats=formats,
                             include_uncertified=args.include_uncertified, **_filter_args(args))
     print((result.directory / "summary.txt").read_text(), end="")
     print(f"wrote {len(result.files)} files into {result.directory}")

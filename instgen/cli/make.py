@@ -9,8 +9,8 @@ ORDER = 20
 HELP = "make a random instance on a graph with a coupling alphabet"
 DESCRIPTION = """Make a random instance and write it as an instance file, e.g.
 
-  instgen make chimera:4 --couplings pm1 --seed 1 -o x.json
-  instgen make "chimera:6;dead-nodes=5" --couplings levels:-1,-2/3,-1/3,1/3,2/3,1 --precision 1/3 -o chip.json
+  instgen make chimera:4 --couplings pm1 --seed 1 --out x.json
+  instgen make "chimera:6;dead-nodes=5" --couplings levels:-1,-2/3,-1/3,1/3,2/3,1 --precision 1/3 --out chip.json
 """
 
 
@@ -25,13 +25,13 @@ def add_arguments(p):
     p.add_argument("--precision", type=number, metavar="STEP",
                    help="round couplings and fields to multiples of STEP (a number or a fraction such as 1/3)")
     add_seed(p)
-    p.add_argument("-o", "--output", required=True, metavar="FILE", help="instance file to write")
+    p.add_argument("-o", "--out", required=True, metavar="FILE", help="instance file to write")
 
 
 def run(args):
     inst = make_instance(args.graph, args.couplings, args.fields, seed=args.seed,
                          coupling_range=args.coupling_range, field_range=args.field_range,
                          precision=args.precision)
-    path = save_instance(inst, args.output, provenance={"seed": args.seed})
+    path = save_instance(inst, args.out, provenance={"seed": args.seed})
     print(f"wrote {path}: {inst.n} spins, {inst.m} couplers on {inst.graph}")
     return 0

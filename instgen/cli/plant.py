@@ -11,10 +11,10 @@ HELP = "make an instance with a planted ground state (frustrated loops, Wishart,
 DESCRIPTION = """Make an instance whose ground state is known by construction, hidden by a
 random gauge, and write it with a checked 'planted' certificate, e.g.
 
-  instgen plant chimera:8 --method loops --density 0.3 --seed 1 -o loops.json
-  instgen plant pegasus:4 --method loops --density 0.5 --cap 3 --min-length 6 -o range3.json
-  instgen plant complete:64 --method wishart --alpha 0.75 --seed 2 -o dense.json
-  instgen plant square:32 --method tiles --mix 0.2,0.5,0.3 --seed 3 -o tiles.json
+  instgen plant chimera:8 --method loops --density 0.3 --seed 1 --out loops.json
+  instgen plant pegasus:4 --method loops --density 0.5 --cap 3 --min-length 6 --out range3.json
+  instgen plant complete:64 --method wishart --alpha 0.75 --seed 2 --out dense.json
+  instgen plant square:32 --method tiles --mix 0.2,0.5,0.3 --seed 3 --out tiles.json
   instgen plant --list
 """
 
@@ -55,7 +55,7 @@ def add_arguments(p):
     g.add_argument("--patch-size", type=int, dest="patch_size", metavar="K", help="spins per patch")
     add_seed(p)
     p.add_argument("--no-certificate", action="store_true", help="skip checking the construction's proof")
-    p.add_argument("-o", "--output", metavar="FILE", help="instance file to write")
+    p.add_argument("-o", "--out", metavar="FILE", help="instance file to write")
     add_json(p)
 
 
@@ -81,8 +81,8 @@ def _list(as_json):
 def run(args):
     if args.list:
         return _list(args.json)
-    if not args.graph or not args.output:
-        raise InputError("give a graph spec and -o FILE (or --list to see the families)")
+    if not args.graph or not args.out:
+        raise InputError("give a graph spec and --out FILE (or --list to see the families)")
     family = PLANTED.get(args.method)
     valid = family.knobs()
     knobs = {k: getattr(args, k) for k in FLAGS if getattr(args, k) is not None}
@@ -91,7 +91,7 @@ def run(args):
         raise InputError(f"--{FLAGS[wrong[0]]} does not apply to {args.method}; its options are "
                          + ", ".join(f"--{FLAGS[k]}" for k in valid if k in FLAGS))
     inst = plant(args.graph, args.method, seed=args.seed, certify=not args.no_certificate, **knobs)
-    path = save_instance(inst, args.output, provenance={"seed": args.seed})
+    path = save_instance(inst, args.out, provenance={"seed": args.seed})
     con = inst.metadata["construction"]
     cert = inst.metadata.get("certificate")
     summary = {"file": str(path), "family": args.method, "graph": inst.graph, "n": inst.n, "m": inst.m,

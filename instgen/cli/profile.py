@@ -18,7 +18,7 @@ lowest energy, the residual energy above the ground state, how many spins change
 since the previous point and how many are frozen until the end.  A two-piece line
 fitted to energy against s estimates where progress stops, with its uncertainty.
 
-  instgen profile hall_of_fame/01-3fa9c2d1e04b.json
+  instgen profile winners/01-3fa9c2d1e04b.json
   instgen profile chip.json --points 30 --reads 64 --sweeps 2000 --seed 4 --out previews/
 
 Writes NAME-profile.csv, NAME-profile.json and NAME-profile.png next to the file

@@ -10,7 +10,7 @@ One generation:
    pooled, so a lucky first score regresses towards the truth.
 2. **Confirm.** The best ``confirm_top`` candidates not yet confirmed are measured
    once more with ``confirm_reads`` reads on seeds no search measurement used.
-   Only that independent figure decides entry to the hall of fame, and the run
+   Only that independent figure decides who becomes a winner, and the run
    reports search and confirmed fitness side by side.
 3. **Select and vary.** Elites survive; the rest of the population is bred by
    tournament selection, crossover and mutation (:mod:`.operators`).
@@ -48,7 +48,7 @@ from .operators import Variation, Variator, default_operators
 
 #: Keys that may change between a run and its resume (they decide when to stop).
 RESUMABLE_KEYS = {("search", "generations"), ("search", "time_budget"), ("search", "stall"), ("search", "target"),
-                  ("search", "workers"), ("run", "output"), ("library", "path")}
+                  ("search", "workers"), ("run", "out"), ("library", "path")}
 
 
 @dataclasses.dataclass
@@ -77,7 +77,7 @@ class Individual:
 
 @dataclasses.dataclass
 class Famous:
-    """A hall-of-fame entry: confirmed on fresh seeds."""
+    """A winner: confirmed on fresh seeds."""
 
     genome: object
     key: str
@@ -133,7 +133,7 @@ class Breeder:
     cfg : dict
         A validated preset (:func:`instgen.preset.load_preset`).
     out : path
-        The run folder (log, checkpoints, hall of fame, summary).
+        The run folder (log, checkpoints, winners, summary).
     executor : executor, optional
         Where evaluations run (default: from ``search.workers``).
     fitness : callable, optional
@@ -179,7 +179,7 @@ class Breeder:
         """The energy a candidate is measured against (None: the best energy found).
 
         ``confirm-certified`` searches against the best energy found (cheap) but
-        confirms against a proven optimum, so the hall of fame's figures do not
+        confirms against a proven optimum, so the winners' figures do not
         rest on an excited state that the sampler mistook for the ground state.
         """
         ref_mode = self.cfg["fitness"]["reference"]
@@ -263,7 +263,7 @@ class Breeder:
             self.hall.append(fam)
             entered.append(fam)
         self.hall.sort(key=lambda f: (-f.confirmed, f.key))
-        del self.hall[self.cfg["search"]["hall_of_fame"]:]
+        del self.hall[self.cfg["search"]["winners"]:]
         return entered
 
     # ----------------------------------------------------------- breeding
@@ -427,7 +427,7 @@ class Breeder:
         finally:
             self.executor.close()
         return {"stopped": reason, "generations": self.generation, "evaluations": self.evaluations,
-                "elapsed": self.elapsed, "hall_of_fame": [f.to_dict() for f in self.hall]}
+                "elapsed": self.elapsed, "winners": [f.to_dict() for f in self.hall]}
 
     def _log(self, record: dict) -> None:
         """Append a generation's record to log.jsonl (a full disk stops the run with the checkpoint intact)."""
@@ -446,7 +446,7 @@ class Breeder:
             "q25": float(np.quantile(fit, 0.25)), "q75": float(np.quantile(fit, 0.75)),
             "best_confirmed": self.hall[0].confirmed if self.hall else None,
             "confirmed_this_generation": [f.confirmed for f in entered],
-            "hall_size": len(self.hall), "evaluations": self.evaluations, "seconds": seconds,
+            "winners_kept": len(self.hall), "evaluations": self.evaluations, "seconds": seconds,
             "evaluations_per_second": evals / seconds if seconds > 0 else None, "elapsed": self.elapsed,
         }
 
@@ -460,7 +460,7 @@ def _stopped(exc: ClusterError, out: Path, finished: int) -> str:
 
 
 def _slim(details: dict) -> dict:
-    """Details without the per-sweep grid rows' bulk, for the hall of fame."""
+    """Details without the per-sweep grid rows' bulk, for the winners."""
     return json.loads(json.dumps(details, default=float))
 
 
@@ -468,16 +468,16 @@ def breed(cfg: dict, out=None, fitness=None, executor=None, resume: bool = False
     """Breed instances for a validated preset; the notebook entry point.
 
     Returns the summary (see :func:`instgen.evolve.finish.finish`) after the
-    search and the final certification/measurement of the hall of fame.
+    search and the final certification/measurement of the winners.
     ``progress`` gets each generation's log record, ``say`` one line per step
     of the work after the search.
     """
     from ..preset import with_output
     from .finish import finish
 
-    if out is not None:  # out replaces [run] output; a [library] path inside that folder moves along
+    if out is not None:  # out replaces [run] out; a [library] path inside that folder moves along
         cfg = with_output(cfg, out)
-    out = Path(cfg["run"]["output"])
+    out = Path(cfg["run"]["out"])
     if cfg["library"]["path"]:  # the winners are filed at the end: a wrong folder is named before the run
         from ..library import Library
 

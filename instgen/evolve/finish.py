@@ -1,6 +1,6 @@
-"""After the search: certify the hall of fame, measure it honestly, compare with two baselines.
+"""After the search: certify the winners, measure it honestly, compare with two baselines.
 
-For each hall-of-fame entry (up to ``[library] count``):
+For each winner (up to ``[search] winners``):
 
 1. build the instance, with its rules, construction and provenance;
 2. certify its ground state (``[library] certify``; planted instances are
@@ -9,7 +9,7 @@ For each hall-of-fame entry (up to ``[library] count``):
 3. measure the run's metric again on fresh seeds, against the certified energy,
    under the search sampler and every extra solver in ``[fitness] solvers``
    (TTS99 pinned at its optimal sweep count);
-4. write it to ``hall_of_fame/`` with its certificate and scores.
+4. write it to ``winners/`` with its certificate and scores.
 
 The same measurement is made on ``[library] baseline`` instances of two kinds,
 so the summary can say what breeding added, measured in the same run:
@@ -105,18 +105,18 @@ def _entry(inst, cert, scores, path=None) -> dict:
 
 
 def finish(breeder, result: dict, say=None) -> dict:
-    """Certify, re-measure and write the hall of fame; returns the run summary (also in summary.json).
+    """Certify, re-measure and write the winners; returns the run summary (also in summary.json).
 
     ``say`` (a callable taking one line) hears what each phase is doing.
     """
     say = say or (lambda text: None)
     cfg, ctx, out = breeder.cfg, breeder.ctx, breeder.out
     run_id = uuid.uuid5(uuid.NAMESPACE_OID, f"{preset_hash(cfg)}:{out.resolve()}").hex[:12]
-    hall_dir = out / "hall_of_fame"
+    hall_dir = out / "winners"
     hall_dir.mkdir(parents=True, exist_ok=True)
     winners = []
     construction = breeder.var.extra.get("construction")
-    chosen = breeder.hall[: cfg["library"]["count"]]
+    chosen = breeder.hall[: cfg["search"]["winners"]]
     for rank, fam in enumerate(chosen, 1):
         say(f"winner {rank} of {len(chosen)}: certifying and measuring on fresh seeds")
         J, h, planted, _ = fam.genome.couplings()
@@ -153,8 +153,8 @@ def finish(breeder, result: dict, say=None) -> dict:
         "stopped": result["stopped"], "generations": result["generations"], "evaluations": result["evaluations"],
         "elapsed": result["elapsed"], "winners": winners, "baseline": baseline, "start": start,
         "search_progress": stall(breeder.history),
-        "asked": {"count": cfg["library"]["count"], "hall_of_fame": cfg["search"]["hall_of_fame"],
-                  "confirmed": len(breeder.confirmed_keys), "kept": len(breeder.hall)},
+        "asked": {"winners": cfg["search"]["winners"], "confirmed": len(breeder.confirmed_keys),
+                  "kept": len(breeder.hall)},
         "never_solved_on_confirmation": sum(f.details.get("kind") == "lower bound" for f in breeder.hall),
     }
     summary["measuring"] = {"pinning": pinning(cfg).to_dict(), **measuring_cost(summary)}
@@ -307,7 +307,7 @@ def cautions(summary: dict) -> list[str]:
             out.append(comparison_words(row) + ".")
     blind = summary.get("never_solved_on_confirmation") or 0
     if blind:
-        out.append(f"{blind} of {(summary.get('asked') or {}).get('kept', len(summary['winners']))} hall-of-fame entries were never solved by their "
+        out.append(f"{blind} of {(summary.get('asked') or {}).get('kept', len(summary['winners']))} winners were never solved by their "
                    "confirmation reads on the search grid, so the search could rank them only by residual energy: "
                    "longer anneals in [fitness] sweeps or more confirm_reads would let it see further.")
     prog = summary.get("search_progress") or {}
@@ -317,14 +317,12 @@ def cautions(summary: dict) -> list[str]:
     out.append("Hardness was measured on " + ", ".join(summary["run"]["solvers"]) + " only; other solvers may "
                "find these instances easier or harder.")
     if not summary["winners"]:
-        out.append("The hall of fame is empty: no candidate was confirmed on fresh seeds.")
+        out.append("There are no winners: no candidate was confirmed on fresh seeds.")
     asked = summary.get("asked") or {}
-    if asked and 0 < len(summary["winners"]) < asked["count"]:
-        why = (f"[search] hall_of_fame keeps only {asked['hall_of_fame']}" if asked["hall_of_fame"] < asked["count"]
-               else f"only {asked['confirmed']} candidates were confirmed ([search] confirm_top per generation "
-                    "times the generations run), and gauge-equivalent ones count once")
-        out.append(f"[library] count asked for {asked['count']} winners, but there are {len(summary['winners'])}: "
-                   f"{why}.")
+    if asked.get("winners") and 0 < len(summary["winners"]) < asked["winners"]:
+        out.append(f"[search] winners asked for {asked['winners']}, but there are {len(summary['winners'])}: only "
+                   f"{asked['confirmed']} candidates were confirmed ([search] confirm_top per generation times the "
+                   "generations run), and gauge-equivalent ones count once.")
     return out
 
 

@@ -1,7 +1,7 @@
 """The HTML page for a run folder (see :mod:`instgen.report.html`).
 
 Everything shown comes from ``summary.json``, ``log.jsonl`` and the
-``hall_of_fame/`` files, except two things measured afresh while the report
+``winners/`` files, except two things measured afresh while the report
 is written, and captioned as such: residual energy at every sweep count of the
 grid (the run stores it at one count) and the anneal profiles of the best
 winners.  Their seeds derive from the report's ``seed``.
@@ -36,7 +36,7 @@ def _load_winner(folder: Path, entry: dict):
 
     if not entry.get("file"):
         return None
-    path = folder / "hall_of_fame" / entry["file"]
+    path = folder / "winners" / entry["file"]
     return load_instance(path) if path.is_file() else None
 
 
@@ -174,7 +174,7 @@ def _profile_section(folder, summary, profiles, reads, sweeps, seed, notes) -> s
     for e in summary["winners"][:profiles]:
         inst = _load_winner(folder, e)
         if inst is None:
-            notes.append(f"winner {e['rank']}: its file {e['file']} is missing from hall_of_fame/, so it has no "
+            notes.append(f"winner {e['rank']}: its file {e['file']} is missing from winners/, so it has no "
                          "anneal profile.")
             continue
         try:
@@ -232,7 +232,7 @@ def run_page(folder: Path, *, reads: int, profiles: int, profile_reads: int, pro
             "fitness by generation",
             "Search fitness (blue) is measured with few reads and pooled over generations, so it is noisy and "
             "optimistic; confirmed fitness (red-orange steps and diamonds) is measured again on fresh seeds and "
-            "decides the hall of fame. The dotted line is the first generation's median: the unbred start. "
+            "decides the winners. The dotted line is the first generation's median: the unbred start. "
             + _stall_words(summary.get("search_progress") or {})))
     else:
         notes.append("log.jsonl is missing or empty, so there is no fitness-by-generation plot.")

@@ -143,6 +143,6 @@ def print_summary(summary: dict, stream=None) -> None:
     if summary.get("library"):
         lib = summary["library"]
         w(f"\nfiled {lib['filed']} winners into the library {lib['path']} ({lib['new']} new)\n")
-    w(f"\nrun folder: {run['folder']}  (summary.json, log.jsonl, hall_of_fame/)\n")
+    w(f"\nrun folder: {run['folder']}  (summary.json, log.jsonl, winners/)\n")
     for c in summary["cautions"]:
         w(f"caution: {c}\n")

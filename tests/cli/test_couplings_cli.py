@@ -42,7 +42,7 @@ def test_the_breed_help_example_is_accepted_as_typed(monkeypatch):
 def test_make_with_four_digit_levels_writes_exact_thirds_and_info_counts_six(tmp_path, capsys):
     f = tmp_path / "chip.json"
     code, _, err = run(["make", "chimera:2", "--couplings", "levels:-1,-0.6667,-0.3333,0.3333,0.6667,1",
-                        "--precision", "1/3", "--range", "1", "--seed", "3", "-o", f], capsys)
+                        "--precision", "1/3", "--range", "1", "--seed", "3", "--out", f], capsys)
     assert code == 0, err
     # the file's own text, read by Python's json: exactly the six thirds, no 0.9999999999999998
     assert set(json.loads(f.read_text())["J"]) == THIRDS
@@ -52,7 +52,7 @@ def test_make_with_four_digit_levels_writes_exact_thirds_and_info_counts_six(tmp
 
 def test_make_refuses_levels_off_the_grid_in_one_line(tmp_path, capsys):
     code, out, err = run(["make", "chimera:1", "--couplings", "levels:-1,-0.33,0.33,1", "--precision", "1/3",
-                          "-o", tmp_path / "x.json"], capsys)
+                          "--out", tmp_path / "x.json"], capsys)
     assert code == 2 and err.count("\n") == 1 and "0.33" in err and not (tmp_path / "x.json").exists()
 
 

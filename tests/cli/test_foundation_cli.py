@@ -13,7 +13,7 @@ run = run_cli
 
 def test_make_then_info(tmp_path, capsys):
     f = tmp_path / "x.json"
-    code, out, err = run(["make", "chimera:4", "--couplings", "pm1", "--seed", "1", "-o", str(f)], capsys)
+    code, out, err = run(["make", "chimera:4", "--couplings", "pm1", "--seed", "1", "--out", str(f)], capsys)
     assert code == 0 and "128 spins" in out
     code, out, err = run(["info", str(f), "--json"], capsys)
     d = json.loads(out)
@@ -31,12 +31,12 @@ def test_graph_summary_and_list(capsys):
 
 
 @pytest.mark.parametrize("argv,needle", [
-    (["make", "foo:3", "-o", "{tmp}/y.json"], "unknown graph family"),
-    (["make", "chimera:2", "--couplings", "int:5", "--range", "1", "-o", "{tmp}/y.json"], "range"),
+    (["make", "foo:3", "--out", "{tmp}/y.json"], "unknown graph family"),
+    (["make", "chimera:2", "--couplings", "int:5", "--range", "1", "--out", "{tmp}/y.json"], "range"),
     (["info", "{tmp}/missing.json"], "no such file"),
     (["info", "{tmp}"], "folder"),
     (["graph", "chimera:-2"], "chimera"),
-    (["make", "chimera:2", "--seed", "-3", "-o", "{tmp}/y.json"], "seed"),
+    (["make", "chimera:2", "--seed", "-3", "--out", "{tmp}/y.json"], "seed"),
 ])
 def test_bad_input_is_one_line_and_exit_2(tmp_path, capsys, argv, needle):
     argv = [a.replace("{tmp}", str(tmp_path)) for a in argv]

@@ -77,13 +77,13 @@ def test_add_list_show_export_suite_verify(tmp_path, files, library, capsys):
     ident = rows[0]["id"][:6]
     code, out, _ = run(["library", "show", ident, *lib], capsys)
     assert code == 0 and rows[0]["fingerprint"] in out and "tts = " in out
-    code, out, _ = run(["library", "export", ident, "--format", "qubo-mtx,edgelist", "--to",
+    code, out, _ = run(["library", "export", ident, "--format", "qubo-mtx,edgelist", "--out",
                         str(tmp_path / "out"), *lib], capsys)
     assert code == 0 and len(list((tmp_path / "out").iterdir())) == 2
-    code, out, _ = run(["library", "export", "--graph", "chimera:2", "--format", "npz", "--to",
+    code, out, _ = run(["library", "export", "--graph", "chimera:2", "--format", "npz", "--out",
                         str(tmp_path / "small"), *lib], capsys)
     assert code == 0 and len(list((tmp_path / "small").glob("*.npz"))) == 4
-    code, out, _ = run(["library", "suite", "--count", "12", "--to", str(tmp_path / "suite"), *lib], capsys)
+    code, out, _ = run(["library", "suite", "--count", "12", "--out", str(tmp_path / "suite"), *lib], capsys)
     assert code == 0 and "12 instances" in out and "12 certified" in out
     code, out, _ = run(["library", "check-suite", str(tmp_path / "suite")], capsys)
     assert code == 0 and "checked 12 suite instances: OK" in out
@@ -118,7 +118,7 @@ def one_line_exit_2(argv, capsys, needle):
 
 
 def test_missing_library(tmp_path, capsys):
-    for action in (["list"], ["show", "abcd1234"], ["verify"], ["rm", "abcd"], ["suite", "--count", "2", "--to",
+    for action in (["list"], ["show", "abcd1234"], ["verify"], ["rm", "abcd"], ["suite", "--count", "2", "--out",
                                                                                 str(tmp_path / "s")]):
         one_line_exit_2(["library", *action, "--library", str(tmp_path / "nowhere")], capsys, "no library")
     assert list(tmp_path.iterdir()) == []
@@ -141,9 +141,9 @@ def test_newer_schema(library, capsys):
     (["rm", "{first}", "0000000"], "no entry"),
     (["add", "{tmp}/c1.json", "{tmp}/missing.json"], "no such file"),
     (["add", "{tmp}/broken.json"], "not valid JSON"),
-    (["export", "{first}", "--format", "excel", "--to", "{tmp}/o"], "unknown export format"),
-    (["export", "--to", "{tmp}/o"], "name the entries"),
-    (["suite", "--count", "99", "--to", "{tmp}/s"], "at most 14"),
+    (["export", "{first}", "--format", "excel", "--out", "{tmp}/o"], "unknown export format"),
+    (["export", "--out", "{tmp}/o"], "name the entries"),
+    (["suite", "--count", "99", "--out", "{tmp}/s"], "at most 14"),
     (["list", "--min", "3"], "needs a metric"),
     (["check-suite", "{tmp}"], "no manifest"),
 ])
@@ -161,13 +161,13 @@ def test_missing_entry_file_and_occupied_export_folder(tmp_path, library, capsys
     lib = ["--library", str(library)]
     entries = sorted((library / "entries").iterdir())
     out_dir = tmp_path / "out"
-    assert run(["library", "export", entries[0].name[:10], "--to", str(out_dir), *lib], capsys)[0] == 0
+    assert run(["library", "export", entries[0].name[:10], "--out", str(out_dir), *lib], capsys)[0] == 0
     before = snapshot(tmp_path)
-    one_line_exit_2(["library", "export", entries[0].name[:10], "--to", str(out_dir), *lib], capsys,
+    one_line_exit_2(["library", "export", entries[0].name[:10], "--out", str(out_dir), *lib], capsys,
                     "already exists")
     assert snapshot(tmp_path) == before
     entries[1].unlink()
     before = snapshot(tmp_path)
-    one_line_exit_2(["library", "export", entries[1].name[:10], "--to", str(tmp_path / "o2"), *lib], capsys,
+    one_line_exit_2(["library", "export", entries[1].name[:10], "--out", str(tmp_path / "o2"), *lib], capsys,
                     "missing")
     assert snapshot(tmp_path) == before

@@ -19,7 +19,7 @@ run = run_cli
 ])
 def test_plant_writes_a_certified_instance(tmp_path, capsys, argv):
     f = tmp_path / "p.json"
-    code, out, err = run(["plant", *argv, "--seed", 3, "-o", f], capsys)
+    code, out, err = run(["plant", *argv, "--seed", 3, "--out", f], capsys)
     assert code == 0 and "proof checked" in out, err
     inst = load_instance(f)
     cert = inst.metadata["certificate"]
@@ -32,7 +32,7 @@ def test_plant_writes_a_certified_instance(tmp_path, capsys, argv):
 
 def test_certify_proves_a_free_instance_and_writes_it(tmp_path, capsys):
     f = tmp_path / "c.json"
-    assert run(["make", "chimera:1,2", "--couplings", "pm1", "--fields", "int:1", "--seed", 2, "-o", f], capsys)[0] == 0
+    assert run(["make", "chimera:1,2", "--couplings", "pm1", "--fields", "int:1", "--seed", 2, "--out", f], capsys)[0] == 0
     code, out, _ = run(["certify", f, "--json"], capsys)
     d = json.loads(out)
     e_ref = dimod.ExactSolver().sample(load_instance(f).to_bqm()).first.energy  # reference
@@ -45,7 +45,7 @@ def test_certify_proves_a_free_instance_and_writes_it(tmp_path, capsys):
 
 def test_unverified_result_says_not_proven(tmp_path, capsys):
     f = tmp_path / "u.json"
-    run(["make", "chimera:2", "--seed", 1, "-o", f], capsys)
+    run(["make", "chimera:2", "--seed", 1, "--out", f], capsys)
     code, out, _ = run(["certify", f, "--method", "anneal", "--time-limit", 1, "--seed", 1, "--write"], capsys)
     assert code == 0 and "status         unverified" in out
     assert any(line.startswith("NOT proven") for line in out.splitlines())
@@ -53,10 +53,10 @@ def test_unverified_result_says_not_proven(tmp_path, capsys):
 
 
 @pytest.mark.parametrize("argv,needle", [
-    (["plant", "square:8", "--method", "tiles", "--density", "0.3", "-o", "{tmp}/y.json"], "--density"),
-    (["plant", "chimera:2", "--method", "wishart", "-o", "{tmp}/y.json"], "complete graph"),
-    (["plant", "chimera:2", "--method", "nope", "-o", "{tmp}/y.json"], "unknown planted family"),
-    (["plant", "chimera:1", "--density", "9", "--cap", "1", "-o", "{tmp}/y.json"], "cap"),
+    (["plant", "square:8", "--method", "tiles", "--density", "0.3", "--out", "{tmp}/y.json"], "--density"),
+    (["plant", "chimera:2", "--method", "wishart", "--out", "{tmp}/y.json"], "complete graph"),
+    (["plant", "chimera:2", "--method", "nope", "--out", "{tmp}/y.json"], "unknown planted family"),
+    (["plant", "chimera:1", "--density", "9", "--cap", "1", "--out", "{tmp}/y.json"], "cap"),
     (["certify", "{tmp}/missing.json"], "no such file"),
     (["certify", "{tmp}/x.json", "--method", "exact"], "2^72"),
     (["certify", "{tmp}/x.json", "--time-limit", "-1"], "time_limit"),
@@ -64,7 +64,7 @@ def test_unverified_result_says_not_proven(tmp_path, capsys):
 ])
 def test_bad_input_is_one_line_and_the_file_is_untouched(tmp_path, capsys, argv, needle):
     x = tmp_path / "x.json"
-    run(["make", "chimera:3", "--seed", 1, "-o", x], capsys)
+    run(["make", "chimera:3", "--seed", 1, "--out", x], capsys)
     before = x.read_bytes()
     code, out, err = run([a.replace("{tmp}", str(tmp_path)) for a in argv], capsys)
     assert code == 2 and err.count("\n") == 1 and needle in err and "Traceback" not in err
@@ -87,7 +87,7 @@ def test_plant_list(capsys):
 ])
 def test_planted_files_carry_their_alphabet_and_profile_without_a_scale(tmp_path, capsys, argv, alphabet, limit):
     f = tmp_path / "p.json"
-    assert run(["plant", *argv, "--seed", 5, "-o", f], capsys)[0] == 0
+    assert run(["plant", *argv, "--seed", 5, "--out", f], capsys)[0] == 0
     inst = load_instance(f)
     rules = inst.metadata["rules"]
     assert rules["couplings"].startswith(alphabet) and rules["coupling_range"] == limit
@@ -110,7 +110,7 @@ def test_wishart_alphabet_spread_matches_its_couplings(tmp_path, capsys):
     import numpy as np
 
     f = tmp_path / "w.json"
-    assert run(["plant", "complete:120", "--method", "wishart", "--alpha", "0.5", "--seed", 2, "-o", f],
+    assert run(["plant", "complete:120", "--method", "wishart", "--alpha", "0.5", "--seed", 2, "--out", f],
                capsys)[0] == 0
     inst = load_instance(f)
     sigma = float(inst.metadata["rules"]["couplings"].partition(":")[2])

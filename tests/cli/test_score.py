@@ -122,7 +122,7 @@ def test_entry_point_runs(files):
 def test_done_criterion_chimera4_tts_under_three_solvers(tmp_path, capsys):
     # The acceptance run, with fewer reads to keep CI time down.
     f = tmp_path / "c4.json"
-    assert run(["make", "chimera:4", "--couplings", "pm1", "--seed", "1", "-o", str(f)], capsys)[0] == 0
+    assert run(["make", "chimera:4", "--couplings", "pm1", "--seed", "1", "--out", str(f)], capsys)[0] == 0
     code, out, _ = run(["score", str(f), "--metric", "tts", "--solvers", "sa,pimc,tabu", "--sweeps", "10,100,1000",
                         "--reads", "24", "--seed", "1", "--budget", "2e7", "--json"], capsys)
     d = json.loads(out)

@@ -164,8 +164,8 @@ def _tiny(**changes):
         "planting": {"method": "terms", "density": 0.5, "terms": {"loop": 1, "cell": 1}},
         "fitness": {"sampler": "fast-sa", "sweeps": [2, 8], "reads": 16, "confirm_reads": 16,
                     "reference": "planted", "beta_range": [0.1, 5.0]},
-        "search": {"population": 4, "generations": 2, "elites": 1, "workers": 1},
-        "library": {"baseline": 0, "count": 2},
+        "search": {"population": 4, "generations": 2, "elites": 1, "workers": 1, "winners": 2},
+        "library": {"baseline": 0},
     }
     for key, val in changes.items():
         table, name = key.split("__")
@@ -220,9 +220,9 @@ def test_terms_run_is_reproducible_and_resumable(tmp_path):
     b = Breeder(_tiny(search__generations=3), tmp_path / "b").run()
     Breeder(_tiny(search__generations=1), tmp_path / "c").run()
     c = Breeder(_tiny(search__generations=3), tmp_path / "c").run(resume=True)
-    key = [(f["key"], f["confirmed"]) for f in a["hall_of_fame"]]
-    assert key == [(f["key"], f["confirmed"]) for f in b["hall_of_fame"]]
-    assert key == [(f["key"], f["confirmed"]) for f in c["hall_of_fame"]]
+    key = [(f["key"], f["confirmed"]) for f in a["winners"]]
+    assert key == [(f["key"], f["confirmed"]) for f in b["winners"]]
+    assert key == [(f["key"], f["confirmed"]) for f in c["winners"]]
 
 
 @pytest.mark.slow

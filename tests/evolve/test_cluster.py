@@ -33,7 +33,7 @@ RAW = {
     "run": {"seed": 31},
     "graph": {"spec": "chimera:2"},
     "fitness": {"sampler": "sa", "sweeps": [10, 400], "reads": 48, "confirm_reads": 48, "reference": "best-found"},
-    "search": {"population": 6, "generations": 2, "elites": 1, "confirm_top": 2, "hall_of_fame": 4, "workers": 1},
+    "search": {"population": 6, "generations": 2, "elites": 1, "confirm_top": 2, "winners": 4, "workers": 1},
     "library": {"baseline": 0},
 }
 
@@ -43,12 +43,12 @@ def tiny():
 
 
 def outcome(result: dict, folder: Path) -> dict:
-    """What must not depend on where evaluations ran: hall of fame, history, population."""
+    """What must not depend on where evaluations ran: winners, history, population."""
     history = [json.loads(x) for x in (folder / "log.jsonl").read_text().splitlines()]
     state = load_checkpoint(folder)
     population = [{k: v for k, v in ind.items() if k != "measurement"}
                   | {"energies": (ind["measurement"] or {}).get("energies")} for ind in state["population"]]
-    return {"hall": json.dumps(result["hall_of_fame"], sort_keys=True),
+    return {"hall": json.dumps(result["winners"], sort_keys=True),
             "history": [{k: v for k, v in r.items() if k not in TIMING} for r in history],
             "population": json.dumps(population, sort_keys=True), "rng": state["rng"],
             "evaluations": result["evaluations"]}

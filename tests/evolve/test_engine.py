@@ -28,7 +28,7 @@ def tiny(**changes):
 
 
 def _strip(result):
-    return json.dumps(result["hall_of_fame"], sort_keys=True)
+    return json.dumps(result["winners"], sort_keys=True)
 
 
 def _history(folder):
@@ -72,7 +72,7 @@ def test_process_pool_gives_the_serial_result(tmp_path):
     assert _strip(serial) == _strip(pooled)
 
 
-def test_hall_of_fame_is_confirmed_on_seeds_the_search_never_used(tmp_path):
+def test_winners_are_confirmed_on_seeds_the_search_never_used(tmp_path):
     br = Breeder(tiny(), tmp_path / "h")
     br.run()
     assert br.hall
@@ -108,7 +108,7 @@ def test_user_fitness_function_is_called_with_instance_and_context(tmp_path):
     result = br.run()
     best = br.population[0]
     assert best.fitness == float(np.sum(best.genome.J > 0))
-    assert result["hall_of_fame"]
+    assert result["winners"]
 
 
 def test_loop_genome_children_keep_the_planted_state(tmp_path):
@@ -125,7 +125,7 @@ def test_loop_genome_children_keep_the_planted_state(tmp_path):
 
 
 def test_confirmation_against_a_proven_optimum(tmp_path):
-    # reference = "confirm-certified": the hall of fame's figures are measured against the exact
+    # reference = "confirm-certified": the winners' figures are measured against the exact
     # ground-state energy (checked here with dimod's ExactSolver, a reference library).
     import dimod
 
@@ -141,18 +141,31 @@ def test_confirmation_against_a_proven_optimum(tmp_path):
 def test_fewer_winners_than_asked_is_said(tmp_path):
     from instgen.evolve.engine import breed
 
-    cfg = tiny(search__generations=2, search__hall_of_fame=2, library__count=5)
+    cfg = tiny(search__generations=2, search__winners=9)
     summary = breed(cfg, out=tmp_path / "few")
-    assert len(summary["winners"]) <= 2
-    assert any("asked for 5 winners" in c and "hall_of_fame keeps only 2" in c for c in summary["cautions"])
+    confirmed = summary["asked"]["confirmed"]
+    assert len(summary["winners"]) <= confirmed < 9
+    assert any(f"asked for 9, but there are {len(summary['winners'])}" in c and f"only {confirmed} candidates" in c
+               for c in summary["cautions"])
+
+
+@pytest.mark.parametrize("old,new", [("run.output", "[run] out"), ("search.hall_of_fame", "[search] winners"),
+                                     ("library.count", "[search] winners")])
+def test_a_renamed_preset_key_names_its_new_key(old, new):
+    from instgen.preset import override, validate
+
+    import re
+
+    with pytest.raises(Exception, match="is now " + re.escape(new)):
+        override(validate({}), [f"{old}=3" if "output" not in old else f'{old}="x"'])
 
 
 def test_a_search_blind_beyond_its_grid_is_told_so():
     from instgen.evolve.finish import cautions, stall
 
     summary = {"winners": [], "baseline": {"count": 0, "certified": 0, "instances": []}, "run": {"solvers": ["sa"]},
-               "asked": {"count": 4, "hall_of_fame": 8, "confirmed": 9, "kept": 8}, "never_solved_on_confirmation": 8}
-    assert any(c.startswith("8 of 8 hall-of-fame entries were never solved") for c in cautions(summary))
+               "asked": {"winners": 8, "confirmed": 9, "kept": 8}, "never_solved_on_confirmation": 8}
+    assert any(c.startswith("8 of 8 winners were never solved") for c in cautions(summary))
     # a confirmed best that never moves after its first confirmation is a stall
     # (generations are numbered from 1, the unbred start, in log.jsonl as on screen)
     flat = [{"generation": g, "median": 1.0, "best_confirmed": None if g == 1 else 2.0} for g in range(1, 7)]

@@ -41,10 +41,9 @@ population = 6
 generations = 25
 elites = 1
 workers = 1
-hall_of_fame = 3
+winners = 3
 [library]
 baseline = 0
-count = 2
 """
 GENERATIONS = 25
 
@@ -93,12 +92,12 @@ def _without_clocks(path: Path) -> list[dict]:
 def _winners(folder: Path) -> list:
     s = json.loads((folder / "summary.json").read_text())
     return [(w["key"], w["confirmed_fitness"], w["search_fitness"], w["certificate"]["energy"],
-             w["certificate"]["status"], load_instance(folder / "hall_of_fame" / w["file"]).J.tolist())
+             w["certificate"]["status"], load_instance(folder / "winners" / w["file"]).J.tolist())
             for w in s["winners"]]
 
 
 @pytest.mark.slow
-def test_breeding_killed_after_a_checkpoint_resumes_to_the_same_hall_of_fame(tmp_path, capsys):
+def test_breeding_killed_after_a_checkpoint_resumes_to_the_same_winners(tmp_path, capsys):
     preset = tmp_path / "tiny.toml"
     preset.write_text(PRESET)
     whole, killed = tmp_path / "whole", tmp_path / "killed"
@@ -114,8 +113,8 @@ def test_breeding_killed_after_a_checkpoint_resumes_to_the_same_hall_of_fame(tmp
     assert _without_clocks(killed / "log.jsonl") == _without_clocks(whole / "log.jsonl")
     assert len(_without_clocks(killed / "log.jsonl")) == GENERATIONS
     assert _winners(killed) == _winners(whole) and _winners(whole)
-    assert sorted(p.name for p in (killed / "hall_of_fame").iterdir()) == \
-        sorted(p.name for p in (whole / "hall_of_fame").iterdir())
+    assert sorted(p.name for p in (killed / "winners").iterdir()) == \
+        sorted(p.name for p in (whole / "winners").iterdir())
 
 
 def _instance_files(folder: Path, count: int) -> list[Path]:
@@ -166,7 +165,7 @@ def test_library_export_killed_midway_leaves_only_complete_files(tmp_path, capsy
     before = snapshot(root)
     out = tmp_path / "out"
     formats = "json,dimod,ising-mtx,qubo-mtx,edgelist,npz"
-    proc = spawn("library", "export", "--all", "--format", formats, "--to", out, "--library", root, cwd=tmp_path)
+    proc = spawn("library", "export", "--all", "--format", formats, "--out", out, "--library", root, cwd=tmp_path)
     wait_for(lambda: out.is_dir() and sum(not _temporary(p) for p in out.iterdir()) >= 12, proc)
     kill(proc)
     written = [p for p in out.iterdir() if not _temporary(p)]
@@ -183,7 +182,7 @@ def test_library_export_killed_midway_leaves_only_complete_files(tmp_path, capsy
     assert snapshot(root) == before  # the library is untouched
     with Library.open(root) as lib:
         assert lib.verify().ok
-    code, _, _, _ = run(["library", "export", "--all", "--format", formats, "--to", out, "--overwrite",
+    code, _, _, _ = run(["library", "export", "--all", "--format", formats, "--out", out, "--overwrite",
                          "--library", root], capsys)
     assert code == 0
 
@@ -195,10 +194,10 @@ def _disk_full(*args, **kwargs):
 
 @pytest.mark.parametrize("argv", [
     ["certify", "{tmp}/a.json", "--write"],
-    ["make", "chimera:1", "--seed", "3", "-o", "{tmp}/a.json"],
+    ["make", "chimera:1", "--seed", "3", "--out", "{tmp}/a.json"],
     ["library", "add", "{tmp}/b.json", "--library", "{tmp}/lib"],
-    ["library", "export", "--all", "--to", "{tmp}/lib-out", "--library", "{tmp}/lib"],
-    ["plant", "chimera:1", "--seed", "2", "-o", "{tmp}/a.json"],
+    ["library", "export", "--all", "--out", "{tmp}/lib-out", "--library", "{tmp}/lib"],
+    ["plant", "chimera:1", "--seed", "2", "--out", "{tmp}/a.json"],
 ], ids=["certify --write", "make over a file", "library add", "library export", "plant over a file"])
 def test_a_full_disk_loses_nothing(tmp_path, capsys, monkeypatch, argv):
     """Every write goes through a temporary file; when the disk is full the old file stays and the

@@ -137,8 +137,8 @@ def test_a_baited_instance_file_is_only_data(tmp_path, capsys, bait):
         ["library", "list", *lib], ["library", "list", "--metric", BAIT, "--json", *lib],
         ["library", "verify", *lib],
         ["library", "export", "--all", "--format", "json,dimod,ising-mtx,qubo-mtx,edgelist,npz",
-         "--to", tmp_path / "out", *lib],
-        ["library", "suite", "--count", "1", "--to", tmp_path / "suite", "--include-uncertified", *lib],
+         "--out", tmp_path / "out", *lib],
+        ["library", "suite", "--count", "1", "--out", tmp_path / "suite", "--include-uncertified", *lib],
         ["library", "check-suite", tmp_path / "suite"],
         ["report", tmp_path / "lib", "--out", tmp_path / "lib-report.html"],
     ]
@@ -162,7 +162,7 @@ def test_a_baited_library_index_is_only_data(tmp_path, capsys, bait):
                  json.dumps({"couplings": BAIT})))
     con.commit()
     con.close()
-    for argv in (["list"], ["list", "--graph", BAIT], ["verify"], ["export", "--all", "--to", tmp_path / "o"]):
+    for argv in (["list"], ["list", "--graph", BAIT], ["verify"], ["export", "--all", "--out", tmp_path / "o"]):
         code, out, err, _ = run(["library", *argv, "--library", root], capsys)
         assert "Traceback" not in err and not bait(), argv
 

@@ -43,7 +43,7 @@ def _entry(inst, cert, scores, file=None):
 
 
 def make_run(folder: Path, winners: int = 3, baseline: int = 2, generations: int = 5, metric: str = "tts") -> dict:
-    """Write summary.json, log.jsonl and hall_of_fame/ into ``folder``; returns the summary.
+    """Write summary.json, log.jsonl and winners/ into ``folder``; returns the summary.
 
     ``metric`` is the run's fitness metric (the winners are scored with it alone).
     """
@@ -57,7 +57,7 @@ def make_run(folder: Path, winners: int = 3, baseline: int = 2, generations: int
         scores = measure_many(inst, [metric], SOLVERS, sweeps=SWEEPS, reads=40, seed=rank)
         inst = inst.replace(metadata={**inst.metadata, "scores": [s.to_dict() for s in scores]})
         name = f"{rank:02d}-w{rank}.json"
-        save_instance(inst, folder / "hall_of_fame" / name)
+        save_instance(inst, folder / "winners" / name)
         e = _entry(inst, cert, scores, name)
         e.update(rank=rank, key=f"key{rank}", generation=rank, search_fitness=2.0 - 0.1 * rank,
                  confirmed_fitness=1.9 - 0.1 * rank)
@@ -87,7 +87,7 @@ def make_run(folder: Path, winners: int = 3, baseline: int = 2, generations: int
         log.append({"generation": g + 1, "best": best, "median": best - 0.3, "q25": best - 0.45, "q75": best - 0.15,
                     "best_confirmed": None if g == 0 else best - 0.1,
                     "confirmed_this_generation": [] if g == 0 else [best - 0.1, best - 0.25],
-                    "hall_size": min(g * 2, 6), "evaluations": 40 * (g + 1), "seconds": 2.5,
+                    "winners_kept": min(g * 2, 6), "evaluations": 40 * (g + 1), "seconds": 2.5,
                     "evaluations_per_second": 16.0, "elapsed": 2.5 * (g + 1)})
     atomic_write(folder / "log.jsonl", "".join(json.dumps(r) + "\n" for r in log))
     return summary

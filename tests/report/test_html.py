@@ -212,7 +212,7 @@ def test_run_without_stored_tts_grid_measures_it(tmp_path):
     # afresh (instgen.scoring) and says so.
     summary = make_run(tmp_path, winners=2, baseline=2, generations=3, metric="anneal-gain")
     page = Page(write_report(tmp_path, reads=8, profiles=0, seed=1).read_text())
-    assert len(page.images) == 3  # hall of fame vs random, fitness, TTS and residual against sweeps
+    assert len(page.images) == 3  # winners vs random, fitness, TTS and residual against sweeps
     assert any("measured afresh" in c for c in page.cautions)
     rows = page.table("winners")
     for row, w in zip(rows, summary["winners"]):

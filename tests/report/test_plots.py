@@ -90,7 +90,7 @@ def test_sweeps_figure_marks_the_optimum(run_folder):
     for e in summary["winners"]:
         tts = next(s for s in e["scores"] if s["metric"] == "tts" and s["solver"] == "sa")
         rows = tts["extra"]["per_sweeps"]
-        inst = load_instance(run_folder / "hall_of_fame" / e["file"])
+        inst = load_instance(run_folder / "winners" / e["file"])
         res = [measure_many(inst, ["residual"], ["sa"], sweeps=[r["sweeps"]], reads=20, seed=1)[0] for r in rows]
         curves.append({"label": e["file"], "sweeps": [r["sweeps"] for r in rows], "tts": [r["tts"] for r in rows],
                        "tts_ci": [r["tts_ci"] for r in rows], "tts_kind": [r["kind"] for r in rows],
