@@ -77,7 +77,7 @@ def main(argv=None):
     for method, r in best.items():
         print(f"  {method:<8} " + (f"{r['graph']:<14} {r['n']:>5} spins  {r['seconds']:6.2f} s  (via {r['method']})"
                                    if r else "none"))
-    print("  anneal   never (its results are unverified by design)")
+    print("  anneal   never (its results are not proven by design)")
 
 
 if __name__ == "__main__":

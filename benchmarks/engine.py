@@ -167,7 +167,7 @@ def main(argv=None):
             rep = 10 ** reported
             print(f"{name:<8} {rep:>10.3g} {tts_fresh:>10.3g} {tts_fresh / median:>22.2f} "
                   f"{rep / tts_fresh if tts_fresh and math.isfinite(tts_fresh) else float('nan'):>17.2f}"
-                  + ("" if status != "unverified" else "  (optimum unverified)"))
+                  + ("" if status != "not proven" else "  (optimum not proven)"))
 
 
 if __name__ == "__main__":

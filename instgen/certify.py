@@ -7,8 +7,8 @@ whose ``status`` says plainly how far to trust it:
   ground state, and the proof was re-checked (method ``planted``);
 * ``proven``: an exact method closed the problem (``exact`` enumeration,
   ``tree`` decomposition, or ``mip`` when HiGHS's bound meets the best state);
-* ``unverified``: the best energy many long anneals found (``anneal``, or a
-  ``mip`` run that ran out of time).  It is NOT proven to be the ground state.
+* ``not proven``: the best energy many long anneals found (``anneal``, or a
+  ``mip`` run that ran out of time).  It is not proven to be the ground state.
 
 ``method="auto"`` tries, in order of cost, the first that can prove the answer
 within ``time_limit``: planted, exact (small parts), tree, exact (up to 30
@@ -39,7 +39,7 @@ from .seeds import derive_seed
 METHODS = Registry("certification method")
 CHOICES = ("auto", "planted", "exact", "tree", "mip", "anneal")
 
-NOT_PROVEN = ("NOT proven: this is the lowest energy found, not a proof that no state is lower; "
+NOT_PROVEN = ("not proven: this is the lowest energy found, not a proof that no state is lower; "
               "success probabilities measured against it may be overstated")
 
 #: Parts up to this many spins are always enumerated (milliseconds).
@@ -102,7 +102,7 @@ def _check(instance, cert):
     if abs(e - cert.energy) > exact.tolerance(instance):
         raise RuntimeError(f"certificate energy {cert.energy} does not match its state ({e})")
     cert.energy = float(e)
-    if cert.status == "unverified":
+    if cert.status == "not proven":
         cert.details.setdefault("warning", NOT_PROVEN)
 
 
@@ -209,7 +209,7 @@ def _mip(instance, ctx) -> Certificate:
                "warm_start": {"energy": warm.energy, "reads": warm.details.get("reads")}}
     if proven:
         details["proof"] = "HiGHS's lower bound met the best state found"
-    return Certificate(energy=energy, state=state, method="mip", status="proven" if proven else "unverified",
+    return Certificate(energy=energy, state=state, method="mip", status="proven" if proven else "not proven",
                        details=details)
 
 
@@ -246,7 +246,7 @@ def _sa_runner():
 
 
 def _anneal(instance, ctx, rounds: int | None = None) -> Certificate:
-    """Best energy from rounds of simulated annealing with doubling sweeps (unverified)."""
+    """Best energy from rounds of simulated annealing with doubling sweeps (not proven)."""
     coef = np.abs(np.concatenate([instance.J, instance.h]))
     coef = coef[coef > 0]
     if coef.size == 0:
@@ -282,7 +282,7 @@ def _anneal(instance, ctx, rounds: int | None = None) -> Certificate:
         sweeps *= 2
     details = {"sampler": engine, "reads": total, "sweeps": used_sweeps, "beta_range": list(beta_range),
                "last_round_hits": hits, "last_round_reads": reads}
-    return Certificate(energy=best_e, state=best_s, method="anneal", status="unverified", details=details)
+    return Certificate(energy=best_e, state=best_s, method="anneal", status="not proven", details=details)
 
 
 for _name, _fn in (("planted", _planted), ("exact", _exact), ("tree", _tree), ("mip", _mip), ("anneal", _anneal)):
@@ -337,7 +337,7 @@ def _auto(instance, ctx) -> Certificate:
 def attach_certificate(instance: Instance, cert: Certificate) -> Instance:
     """A copy of ``instance`` with ``cert.to_dict()`` in ``metadata["certificate"]``.
 
-    An unverified certificate carries ``details["warning"]`` saying it is NOT proven.
+    A not-proven certificate carries ``details["warning"]`` saying so.
 
     >>> from instgen.make import make_instance
     >>> inst = make_instance("chimera:1", seed=2)
@@ -350,7 +350,7 @@ def attach_certificate(instance: Instance, cert: Certificate) -> Instance:
         raise InputError("the certificate's energy does not match this instance (was it made for another one?)")
     if cert.status not in Certificate.STATUSES:
         raise InputError(f"certificate status must be one of {', '.join(Certificate.STATUSES)}")
-    if cert.status == "unverified":
+    if cert.status == "not proven":
         cert.details.setdefault("warning", NOT_PROVEN)
     return instance.replace(metadata={**instance.metadata, "certificate": cert.to_dict()})
 

@@ -78,7 +78,7 @@ class ExportCheck:
     file's own convention; ``stated`` the optimum the file states (same
     convention); ``ising_energy = energy + offset`` the same in the Ising
     convention; ``status`` how the optimum is known (``planted``, ``proven``
-    or ``unverified``) and ``agrees`` whether recomputed and stated match.
+    or ``not proven``) and ``agrees`` whether recomputed and stated match.
     """
 
     format: str
@@ -111,7 +111,7 @@ def optimum_of(inst: Instance) -> tuple[np.ndarray, float, str, str] | None:
 
 def _status_words(status: str) -> str:
     return {"planted": "planted ground state (by construction)", "proven": "proven ground state"}.get(
-        status, "best state found, NOT proven optimal")
+        status, "best state found, not proven optimal")
 
 
 def _chunks(key: str, text: str, size: int) -> list[str]:
@@ -146,7 +146,7 @@ def _read_header(lines) -> dict[str, str]:
 def _need(fields: dict, key: str, path: Path) -> str:
     if key not in fields:
         raise InputError(f"{path} states no '{key}': it carries no optimum to check "
-                         "(was it exported from an uncertified instance, or edited?)")
+                         "(was it exported from an instance without a certificate, or edited?)")
     return fields[key]
 
 
@@ -181,7 +181,7 @@ def _check(fmt, path, energy, stated, offset, status, scale) -> ExportCheck:
 
 
 def _status_of(fields: dict) -> str:
-    return fields.get("optimum status", "unverified").split(" ")[0]
+    return Certificate.status_of(fields.get("optimum status"))
 
 
 # ---------------------------------------------------------------------- json
@@ -241,7 +241,7 @@ def _check_dimod(path: Path) -> ExportCheck:
     first = ss.first
     scale = sum(abs(v) for v in bqm.linear.values()) + sum(abs(v) for v in bqm.quadratic.values())
     return _check("dimod", path, bqm.energy(first.sample), first.energy, bqm.offset,
-                  ss.info.get("status", "unverified"), scale)
+                  Certificate.status_of(ss.info.get("status")), scale)
 
 
 # ------------------------------------------------------------ Matrix Market
@@ -419,7 +419,7 @@ def _check_npz(path: Path) -> ExportCheck:
     s = data["optimum_state"].astype(np.float64)
     e, J, h = data["edges"], data["J"], data["h"]
     energy = float(h @ s + np.sum(J * s[e[:, 0]] * s[e[:, 1]]))
-    status = str(data["optimum_status"]) if "optimum_status" in data else "unverified"
+    status = Certificate.status_of(data["optimum_status"] if "optimum_status" in data else None)
     return _check("npz", path, energy, float(data["optimum_energy"]), 0.0, status,
                   float(np.abs(J).sum() + np.abs(h).sum()))
 

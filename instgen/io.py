@@ -256,6 +256,8 @@ def _check_metadata(meta: dict, n: int, where: str) -> None:
         if (not isinstance(state, list) or len(state) != n
                 or any(isinstance(x, bool) or x not in (-1, 1) for x in state)):
             bad("certificate", f"must hold a state of {n} values of -1 or +1")
+        if isinstance(cert["status"], str) and cert["status"] in Certificate.LEGACY:
+            cert["status"] = Certificate.LEGACY[cert["status"]]
         if cert["status"] not in Certificate.STATUSES or not isinstance(cert["method"], str):
             bad("certificate", f"must have a status among {', '.join(Certificate.STATUSES)} and a method name")
     scores = meta.get("scores")

@@ -66,8 +66,9 @@ class Certificate:
     """How a ground-state energy is known.
 
     ``status`` is one of ``"planted"`` (by construction, checked), ``"proven"``
-    (an exact method closed the problem) or ``"unverified"`` (best found, no
-    proof).  ``state`` is one state at ``energy``; ``ground_states`` the number of
+    (an exact method closed the problem) or ``"not proven"`` (best found, no
+    proof; files written before this vocabulary say ``"not proven"`` and read as
+    ``"not proven"``).  ``state`` is one state at ``energy``; ``ground_states`` the number of
     ground states where the method counts them (else None).
     """
 
@@ -79,7 +80,20 @@ class Certificate:
     ground_states: int | None = None
     details: dict[str, Any] = dataclasses.field(default_factory=dict)
 
-    STATUSES = ("planted", "proven", "unverified")
+    STATUSES = ("planted", "proven", "not proven")
+    NOT_PROVEN = "not proven"
+    LEGACY = {"unverified": "not proven"}   # words of earlier files, read as today's
+
+    @classmethod
+    def status_of(cls, text) -> str:
+        """The status a stored or exported word names: ``planted`` and ``proven``
+        as written (a trailing explanation is ignored), anything else -- the old
+        ``not proven``, a missing or unknown word -- is ``not proven``."""
+        text = str(text or "").strip()
+        for status in ("planted", "proven"):
+            if text == status or text.startswith(status + " "):
+                return status
+        return cls.NOT_PROVEN
 
     @property
     def certified(self) -> bool:
@@ -94,6 +108,7 @@ class Certificate:
     def from_dict(cls, d: dict) -> Certificate:
         d = dict(d)
         d["state"] = np.asarray(d["state"], dtype=np.int8)
+        d["status"] = cls.status_of(d.get("status"))
         return cls(**d)
 
 
@@ -131,4 +146,6 @@ class Score:
         d = dict(d)
         if d.get("ci") is not None:
             d["ci"] = tuple(d["ci"])
+        if d.get("reference_status") is not None:
+            d["reference_status"] = Certificate.status_of(d["reference_status"])
         return cls(**d)

@@ -17,7 +17,7 @@ How a measurement is made:
 * **Reference energy.**  From the caller (``reference=``), else the
   instance's certificate (``metadata["certificate"]``), else its planted
   state, else the lowest energy found across every run of the call, in which
-  case the score's ``reference_status`` is ``"unverified"`` and its notes say
+  case the score's ``reference_status`` is ``"not proven"`` and its notes say
   so.  A sampler finding an energy below a claimed reference is reported
   plainly and the lower energy is used.
 
@@ -39,7 +39,7 @@ from . import metrics as M
 from .errors import InputError, ResourceError
 from .exact import duration
 from .instance import Instance
-from .records import SampleBatch, Score
+from .records import Certificate, SampleBatch, Score
 from .registry import Registry
 from .samplers import SAMPLERS, Schedule, default_beta_range
 from .seeds import as_generator, derive_seed
@@ -175,7 +175,7 @@ def _claimed_reference(instance: Instance, reference, tol: float) -> Reference |
     if reference is not None:
         if isinstance(reference, bool) or not isinstance(reference, (int, float)) or not math.isfinite(reference):
             raise InputError(f"reference must be a finite energy, got {reference!r}")
-        return Reference(float(reference), "unverified", "energy given by the caller",
+        return Reference(float(reference), "not proven", "energy given by the caller",
                          notes=[f"the reference energy {reference:g} was given by the caller and is not checked "
                                 "by instgen: it is not a proven optimum"])
     cert = instance.metadata.get("certificate")
@@ -183,15 +183,15 @@ def _claimed_reference(instance: Instance, reference, tol: float) -> Reference |
         energy = cert.get("energy") if isinstance(cert, dict) else None
         if isinstance(energy, bool) or not isinstance(energy, (int, float)) or not math.isfinite(energy):
             raise InputError("the instance's metadata 'certificate' has no numeric 'energy'")
-        status = cert.get("status") if cert.get("status") in ("planted", "proven", "unverified") else "unverified"
+        status = Certificate.status_of(cert.get("status"))
         ref = Reference(float(energy), status, f"certificate ({cert.get('method', 'unknown method')}, {status})")
         state = cert.get("state")
         if isinstance(state, list) and len(state) == instance.n and all(x in (-1, 1) for x in state):
             s = np.asarray(state, dtype=np.int8)
             if abs(instance.energy(s) - energy) <= tol:
                 ref.states = s[None, :]
-        if status == "unverified":
-            ref.notes.append(f"the certificate's energy {energy:g} is marked unverified: it is not a proven optimum")
+        if status == "not proven":
+            ref.notes.append(f"the certificate's energy {energy:g} is marked not proven: it is no proof of the optimum")
         return ref
     if instance.planted is not None:
         return Reference(instance.planted_energy, "planted", "planted state", states=instance.planted[None, :])
@@ -202,12 +202,12 @@ def resolve_reference(instance: Instance, lowest: float, reference=None, tol: fl
     """The reference energy for a measurement whose lowest energy found is ``lowest``."""
     ref = _claimed_reference(instance, reference, tol)
     if ref is None:
-        return Reference(lowest, "unverified", "lowest energy found in this measurement", notes=[
-            f"the reference energy {lowest:g} is the lowest any sampler found in this measurement, NOT a proven "
+        return Reference(lowest, "not proven", "lowest energy found in this measurement", notes=[
+            f"the reference energy {lowest:g} is the lowest any sampler found in this measurement, not a proven "
             "optimum: success and time-to-solution count reads that matched the best of this run, and a lower "
             "state may exist (plant one or run `instgen certify`)"])
     if lowest < ref.energy - tol:
-        return Reference(lowest, "unverified", "lowest energy found in this measurement", notes=[
+        return Reference(lowest, "not proven", "lowest energy found in this measurement", notes=[
             f"a sampler found energy {lowest:g}, below the reference {ref.energy:g} from the {ref.source}: that "
             f"reference is not a ground state; measured against {lowest:g} instead, which is not a proven "
             "optimum either"])
@@ -499,7 +499,7 @@ def measure(instance: Instance, metric: str, *, sampler: str = "sa", sweeps=None
     >>> inst = make_instance("chimera:2", "pm1", seed=1)
     >>> s = measure(inst, "tts", sweeps=[10, 100], reads=50, seed=3)
     >>> s.metric, s.units, s.reference_status
-    ('tts', 'sweeps', 'unverified')
+    ('tts', 'sweeps', 'not proven')
     """
     return measure_many(instance, [metric], [sampler], sweeps=sweeps, reads=reads, seed=seed, reference=reference,
                         beta_range=beta_range, scale=scale, schedule=schedule,

@@ -42,10 +42,10 @@ def test_every_certifier_agrees_with_exact_solver(method, case):
         assert cert.ground_states == count_ref
 
 
-def test_anneal_is_marked_unverified_and_finds_small_ground_states():
+def test_anneal_is_marked_not_proven_and_finds_small_ground_states():
     inst = make_instance("gnp:16,0.5", "gaussian", "gaussian", seed=2)
     cert = certify(inst, "anneal", time_limit=3, seed=5)
-    assert cert.status == "unverified" and not cert.certified
+    assert cert.status == "not proven" and not cert.certified
     assert cert.details["warning"] == NOT_PROVEN
     assert cert.energy == pytest.approx(reference(inst)[0], abs=1e-9)  # ExactSolver
     again = certify(inst, "anneal", time_limit=3, seed=5)
@@ -92,7 +92,7 @@ def test_free_chimera_4_is_proven():
 def test_time_limited_mip_says_it_is_not_proven():
     inst = make_instance("chimera:3", "gaussian", seed=2)
     cert = certify(inst, "mip", time_limit=1.0, seed=1)
-    if cert.status == "unverified":  # the usual case on a laptop
+    if cert.status == "not proven":  # the usual case on a laptop
         assert cert.details["lower_bound"] < cert.energy and cert.details["warning"] == NOT_PROVEN
     truth = certify(inst, "tree")
     assert cert.energy >= truth.energy - 1e-9
@@ -114,7 +114,7 @@ def test_certificate_round_trip_through_metadata_and_file():
     cert = certify(inst, "anneal", time_limit=1, seed=1)
     stored = attach_certificate(inst, cert)
     back = certificate_of(loads_instance(dumps_instance(stored)))
-    assert back.status == "unverified" and "NOT proven" in back.details["warning"]
+    assert back.status == "not proven" and "not proven" in back.details["warning"]
     assert back.energy == cert.energy and np.array_equal(back.state, cert.state)
     other = make_instance("chimera:1", seed=4)
     if other.energy(cert.state) != cert.energy:

@@ -94,3 +94,18 @@ def test_atomic_save_keeps_old_file_when_writing_fails(tmp_path, monkeypatch):
         save_instance(make_instance("chimera:1", "pm1", seed=2), p)
     assert p.read_bytes() == before
     assert [x.name for x in tmp_path.iterdir()] == ["keep.json"]
+
+
+def test_an_earlier_files_unverified_optimum_reads_as_not_proven(tmp_path):
+    # Files written before the status words were unified say "unverified"; they read as "not proven".
+    from instgen.records import Certificate
+
+    inst = make_instance("chimera:1", "pm1", seed=1)
+    doc = json.loads(dumps_instance(inst))
+    state = [1] * inst.n
+    doc["metadata"]["certificate"] = {"energy": float(inst.energy(np.array(state))), "state": state,
+                                      "method": "anneal", "status": "unverified"}
+    p = tmp_path / "old.json"
+    p.write_text(json.dumps(doc))
+    cert = Certificate.from_dict(load_instance(p).metadata["certificate"])
+    assert cert.status == "not proven" and not cert.certified

@@ -49,21 +49,21 @@ def test_reference_from_planted_state():
     inst = planted_chimera()
     s = measure(inst, "success", sweeps=200, reads=20, seed=1)
     assert s.reference == pytest.approx(-inst.m) and s.reference_status == "planted"
-    assert not any("NOT a proven optimum" in n for n in s.notes)
+    assert not any("not a proven optimum" in n for n in s.notes)
     assert s.value > 0.5  # an easy ferromagnet: SA finds its ground state
 
 
-def test_reference_found_is_flagged_unverified(c2):
+def test_reference_found_is_flagged_not_proven(c2):
     s = measure(c2, "success", sweeps=100, reads=20, seed=1)
-    assert s.reference_status == "unverified"
-    assert any("NOT a proven optimum" in n for n in s.notes)
+    assert s.reference_status == "not proven"
+    assert any("not a proven optimum" in n for n in s.notes)
 
 
 def test_wrong_certificate_is_reported_and_replaced():
     inst = planted_chimera()
     bad = Certificate(-inst.m + 4.0, np.ones(inst.n), "made up", "proven").to_dict()
     s = measure(inst.replace(metadata={**inst.metadata, "certificate": bad}), "success", sweeps=200, reads=20, seed=1)
-    assert s.reference == pytest.approx(-inst.m) and s.reference_status == "unverified"
+    assert s.reference == pytest.approx(-inst.m) and s.reference_status == "not proven"
     assert any("is not a ground state" in n for n in s.notes)
 
 

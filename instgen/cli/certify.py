@@ -9,14 +9,14 @@ ORDER = 40
 HELP = "find and prove the ground-state energy of an instance file"
 DESCRIPTION = """Find the ground-state energy of an instance and say how it is known:
 planted (the construction proves it), proven (an exact method closed it) or
-unverified (only the best found; NOT a proof).  e.g.
+not proven (only the best found; no proof).  e.g.
 
   instgen certify c4.json
   instgen certify big.json --method anneal --time-limit 120 --write
   instgen certify c4.json --json
 
 methods: auto (default: the cheapest that can prove it), planted, exact (n <= 30),
-tree (small treewidth), mip (HiGHS, proven when the gap closes), anneal (unverified).
+tree (small treewidth), mip (HiGHS, proven when the gap closes), anneal (not proven).
 """
 
 
@@ -55,7 +55,7 @@ def run(args):
         print(f"why            {d['proof']}")
     for reason in d.get("passed_over", []):
         print(f"passed over    {reason}")
-    if cert.status == "unverified":
+    if cert.status == "not proven":
         print(d["warning"])
     if args.write:
         print(f"certificate written to {args.file}")

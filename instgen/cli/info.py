@@ -78,8 +78,8 @@ def run(args):
         print("planted     no")
     if d["certificate"]:
         c = d["certificate"]
-        note = "" if c["status"] in ("planted", "proven") else "  (NOT a proven optimum)"
+        note = "" if c["status"] in ("planted", "proven") else "  (not a proven optimum)"
         print(f"optimum     {c['energy']:g} by {c['method']} ({c['status']}){note}")
     else:
-        print("optimum     not certified (run `instgen certify`)")
+        print("optimum     unknown (run `instgen certify` to find and prove it)")
     return 0

@@ -49,7 +49,7 @@ def _filters(p, sort=True):
     cert = g.add_mutually_exclusive_group()
     cert.add_argument("--certified", action="store_const", const=True, dest="certified",
                       help="only entries with a planted or proven ground state")
-    cert.add_argument("--uncertified", action="store_const", const=False, dest="certified",
+    cert.add_argument("--not-proven", action="store_const", const=False, dest="certified",
                       help="only entries whose optimum is not proven")
     g.add_argument("--tag", action="append", default=[], metavar="TAG", help="only entries with this tag (repeatable)")
     g.add_argument("--metric", metavar="NAME", help="hardness metric to filter or sort on")
@@ -121,7 +121,7 @@ def add_arguments(p):
     su.add_argument("-o", "--out", required=True, type=Path, metavar="DIR", help="new or empty folder to write")
     su.add_argument("--size-groups", type=positive_int, default=4, metavar="G", help="size groups (default 4)")
     su.add_argument("--format", action="append", default=[], metavar="F", help=fmt_help + " (json always)")
-    su.add_argument("--include-uncertified", action="store_true", help="allow entries whose optimum is not proven")
+    su.add_argument("--include-not-proven", action="store_true", help="allow entries whose optimum is not proven")
     _filters(su, sort=False)
     su.set_defaults(_action=_suite)
 
@@ -194,7 +194,7 @@ def _list(args):
     unc = sum(not e.certified for e in entries)
     line = f"{len(entries)} entr{'y' if len(entries) == 1 else 'ies'}"
     if unc:
-        line += (f"; {unc} UNCERTIFIED: their optimum is the best state found (or unknown), "
+        line += (f"; {unc} not proven: their optimum is the best state found (or unknown), "
                  "not a proven ground state")
     print(line)
     return 0
@@ -217,7 +217,7 @@ def _show(args):
         count = "unknown" if c.ground_states is None else str(c.ground_states)
         print(f"certificate   method {c.method}, {c.seconds:.3g} s, ground states: {count}")
         if not e.certified:
-            print("              NOT a proven optimum: a lower energy may exist")
+            print("              not a proven optimum: a lower energy may exist")
     print(f"tags          {', '.join(e.tags) or '-'}")
     print(f"added         {e.added}  (created {e.created or 'unknown'}; filed {e.sightings} time(s))")
     prov = {k: v for k, v in e.provenance.items() if k != "created"}
@@ -291,7 +291,7 @@ def _suite(args):
     formats = _formats(args.format)
     with _open(args) as lib:
         result = make_suite(lib, args.count, args.out, size_groups=args.size_groups, formats=formats,
-                            include_uncertified=args.include_uncertified, **_filter_args(args))
+                            include_not_proven=args.include_not_proven, **_filter_args(args))
     print((result.directory / "summary.txt").read_text(), end="")
     print(f"wrote {len(result.files)} files into {result.directory}")
     return 0

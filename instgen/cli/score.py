@@ -8,6 +8,7 @@ import math
 from ..errors import InputError
 from ..io import load_instance
 from ..samplers.schedule import INTERPOLATIONS, SHAPES
+from ..samplers import SAMPLERS, SUMMARIES
 from ..scoring import COMBINE, METRICS, Pinning, measure_many, measure_perturbed
 from ._common import add_json, add_seed, int_list, positive_int, print_json
 
@@ -24,6 +25,9 @@ schedules, confidence intervals and the seeds used, e.g.
 metrics:
 """ + "\n".join(f"  {n:<14} {METRICS.get(n).summary}" for n in METRICS.names()) + """
 
+samplers (--sampler, --solvers):
+""" + "\n".join(f"  {n:<14} {SUMMARIES[n]}" for n in SAMPLERS.names()) + """
+
 TTS99 is pinned at its optimal number of sweeps: starting from --sweeps, the
 sweep counts are extended (down to 1, up to --max-sweeps) and reads added
 until the minimum is interior and rests on --min-successes successes, within
@@ -31,7 +35,7 @@ until the minimum is interior and rests on --min-successes successes, within
 next step would cost.  --fixed-grid keeps to the sweep counts given.
 
 The reference energy is the instance's certificate, else its planted state,
-else the lowest energy found in this run (then it is NOT a proven optimum and
+else the lowest energy found in this run (then it is not a proven optimum and
 the output says so)."""
 
 
@@ -206,7 +210,7 @@ def _print(path, inst, scores):
     first = scores[0]
     print(f"reference  {_num(first.reference)} ({first.extra.get('reference_source')}; {first.reference_status})")
     if first.reference_status not in ("planted", "proven"):
-        print("           NOT a proven optimum: success and TTS are measured against it as it stands")
+        print("           not a proven optimum: success and TTS are measured against it as it stands")
     print(f"schedule   beta range from the {first.extra.get('beta_range_source', 'caller')}")
     print(f"seed       {first.extra.get('seed')}; {first.reads} reads per sweep count"
           + (", more where pinning TTS99 needs them" if any(x.extra.get("pin") for x in scores) else ""))

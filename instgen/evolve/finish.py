@@ -5,7 +5,7 @@ For each winner (up to ``[search] winners``):
 1. build the instance, with its rules, construction and provenance;
 2. certify its ground state (``[library] certify``; planted instances are
    checked against their construction) — an unproven optimum stays marked
-   ``unverified`` everywhere it appears;
+   ``not proven`` everywhere it appears;
 3. measure the run's metric again on fresh seeds, against the certified energy,
    under the search sampler and every extra solver in ``[fitness] solvers``
    (TTS99 pinned at its optimal sweep count);
@@ -74,7 +74,7 @@ def _needs_reference(ctx) -> bool:
 def _no_certificate():
     from ..records import Certificate
 
-    return Certificate(math.nan, np.zeros(0, dtype=np.int8), "none", "unverified",
+    return Certificate(math.nan, np.zeros(0, dtype=np.int8), "none", "not proven",
                        details={"why": "not needed: the run's metric does not use the ground-state energy"})
 
 
@@ -286,9 +286,9 @@ def cautions(summary: dict) -> list[str]:
     """Plain-language warnings a reader needs before trusting the figures."""
     out = []
     uses_reference = any(s["metric"] in USES_REFERENCE for e in summary["winners"] for s in e["scores"])
-    unproven = [e["file"] for e in summary["winners"] if e["certificate"]["status"] == "unverified"]
+    unproven = [e["file"] for e in summary["winners"] if e["certificate"]["status"] == "not proven"]
     if unproven and uses_reference:
-        out.append(f"{len(unproven)} of {len(summary['winners'])} winners have NO proven optimum (best energy found "
+        out.append(f"{len(unproven)} of {len(summary['winners'])} winners have an optimum that is not proven (best energy found "
                    "only); their success probabilities and TTS are measured against an energy that may not be the "
                    "ground state.")
     base = summary["baseline"]

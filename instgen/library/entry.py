@@ -162,7 +162,7 @@ class Entry:
 
     ``certificate`` is None for an entry with no known optimum; an entry is
     *certified* only when the certificate's status is ``planted`` or
-    ``proven`` (an ``unverified`` optimum is a best found state).  Call
+    ``proven`` (an ``not proven`` optimum is a best found state).  Call
     :meth:`instance` for the instance itself with the library's metadata.
     """
 
@@ -199,10 +199,10 @@ class Entry:
         """The optimum in plain words, saying so when it is not proven."""
         c = self.certificate
         if c is None:
-            return "unknown (uncertified)"
+            return "unknown (no certificate)"
         if c.status in CERTIFIED:
             return f"{c.energy:.10g} ({c.status})"
-        return f"{c.energy:.10g} (UNCERTIFIED: best found, not proven)"
+        return f"{c.energy:.10g} (not proven: the best state found)"
 
     def latest(self, metric: str, solver: str | None = None) -> Score | None:
         """The most recently filed measurement of ``metric`` (by ``solver``).

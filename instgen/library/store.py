@@ -295,6 +295,7 @@ class Library:
         energy = stored.energy(state)
         tol = energy_tolerance(stored)
         old_status, old_energy = row["cert_status"], row["cert_energy"]
+        old_status = None if old_status is None else Certificate.status_of(old_status)
         new_cert = dataclasses.replace(cert, state=state, energy=energy)
         if old_status is None:
             self._store_certificate(con, row["fingerprint"], new_cert, now)
@@ -311,7 +312,7 @@ class Library:
             return f"certificate upgraded from {old_status} to {cert.status}"
         if not new_ok and not old_ok and energy < old_energy - tol:
             self._store_certificate(con, row["fingerprint"], new_cert, now)
-            return f"better best-found state ({old_energy:.10g} -> {energy:.10g}, still unverified)"
+            return f"better best-found state ({old_energy:.10g} -> {energy:.10g}, still not proven)"
         if new_ok and old_ok and row["ground_states"] is None and cert.ground_states is not None:
             con.execute("UPDATE entries SET ground_states = ?, updated = ? WHERE fingerprint = ?",
                         (cert.ground_states, now, row["fingerprint"]))
@@ -433,7 +434,8 @@ class Library:
         cert = None
         if r["cert_status"] is not None:
             cert = Certificate(energy=float(r["cert_energy"]), state=decode_state(r["cert_state"] or ""),
-                               method=r["cert_method"], status=r["cert_status"], seconds=r["cert_seconds"] or 0.0,
+                               method=r["cert_method"], status=Certificate.status_of(r["cert_status"]),
+                               seconds=r["cert_seconds"] or 0.0,
                                ground_states=r["ground_states"], details=json.loads(r["cert_details"] or "{}"))
         return Entry(
             fingerprint=r["fingerprint"], graph=r["graph"], n=r["n"], m=r["m"], couplings=r["couplings"],

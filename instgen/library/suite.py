@@ -145,12 +145,12 @@ def _sha256(path: Path) -> str:
 
 
 def make_suite(library: Library, count: int, directory, metric: str | None = None, solver: str | None = None,
-               size_groups: int = 4, formats=("json",), include_uncertified: bool = False,
+               size_groups: int = 4, formats=("json",), include_not_proven: bool = False,
                **filters) -> SuiteResult:
     """Pick ``count`` entries (see :func:`pick_stratified`) and write them as a suite.
 
     ``filters`` are those of :meth:`Library.list`.  Only certified entries
-    qualify unless ``include_uncertified``.  ``directory`` must be new or
+    qualify unless ``include_not_proven``.  ``directory`` must be new or
     empty; nothing existing is overwritten.
 
     Examples
@@ -161,7 +161,7 @@ def make_suite(library: Library, count: int, directory, metric: str | None = Non
     >>> with Library.open(d + "/lib", create=True) as lib:
     ...     for seed in range(3):
     ...         _ = lib.add(make_instance("chimera:1", "gaussian", seed=seed))
-    ...     result = make_suite(lib, 2, d + "/suite", include_uncertified=True)
+    ...     result = make_suite(lib, 2, d + "/suite", include_not_proven=True)
     >>> len(result.picks), verify_suite(d + "/suite").ok
     (2, True)
     """
@@ -173,7 +173,7 @@ def make_suite(library: Library, count: int, directory, metric: str | None = Non
     directory = Path(directory)
     if directory.exists() and (not directory.is_dir() or any(directory.iterdir())):
         raise InputError(f"{directory} exists and is not empty; a suite goes into a new or empty folder")
-    if not include_uncertified:
+    if not include_not_proven:
         filters["certified"] = True
     entries = library.list(**filters)
     picks, notes = pick_stratified(entries, count, metric, solver, size_groups)
@@ -187,11 +187,11 @@ def make_suite(library: Library, count: int, directory, metric: str | None = Non
     pairs = sorted({(s.metric, s.solver) for p in picks for s in p.entry.scores})
     files.append(atomic_write(directory / TABLE, _table(picks, metric, solver, pairs)))
     files.append(atomic_write(directory / SUMMARY, _summary(library, picks, metric, solver, notes,
-                                                            include_uncertified)))
+                                                            include_not_proven)))
     manifest = {
         "format": SUITE_FORMAT, "format_version": SUITE_VERSION, "created": schema.now(),
         "tool_version": __version__, "count": len(picks), "metric": metric, "solver": solver,
-        "size_groups": size_groups, "certified_only": not include_uncertified, "filters": filters,
+        "size_groups": size_groups, "certified_only": not include_not_proven, "filters": filters,
         "formats": formats, "notes": notes,
         "instances": [{"file": f"{INSTANCES}/{k:02d}-{p.entry.id}.json", "fingerprint": p.entry.fingerprint,
                        "graph": p.entry.graph, "n": p.entry.n, "m": p.entry.m,
@@ -223,19 +223,19 @@ def _table(picks, metric, solver, pairs) -> str:
         ci = (s.ci if s is not None and s.ci else None) or (None, None)
         others = [e.latest(m, sv) for m, sv in pairs]
         w.writerow([k, e.id, f"{INSTANCES}/{k:02d}-{e.id}.json", e.graph, e.n, e.m, int(e.has_fields),
-                    e.couplings or "", _fmt(c and c.energy), c.status if c else "uncertified",
+                    e.couplings or "", _fmt(c and c.energy), c.status if c else "no certificate",
                     c.method if c else "", _fmt(c and c.ground_states), p.size_group + 1, _fmt(p.quantile),
                     metric or "", s.solver if s else "", _fmt(p.value), _fmt(ci[0]), _fmt(ci[1]),
                     *[_fmt(o.value) if o else "" for o in others], e.fingerprint])
     return buf.getvalue()
 
 
-def _summary(library, picks, metric, solver, notes, include_uncertified) -> str:
+def _summary(library, picks, metric, solver, notes, include_not_proven) -> str:
     lines = [f"instgen suite: {len(picks)} instances from {library.root} (instgen {__version__}, {schema.now()})"]
     how = (f"size group and hardness quantiles of {metric}" + (f" ({solver})" if solver else "")
            if metric else "size only")
     lines.append(f"picked by {how}; "
-                 + ("certified and uncertified entries" if include_uncertified else "certified entries only"))
+                 + ("planted, proven and not proven entries" if include_not_proven else "planted and proven entries only"))
     for g in sorted({p.size_group for p in picks}):
         group = [p for p in picks if p.size_group == g]
         sizes = sorted({p.entry.n for p in group})
@@ -244,9 +244,9 @@ def _summary(library, picks, metric, solver, notes, include_uncertified) -> str:
         if values:
             line += f"; {metric} from {min(values):.4g} to {max(values):.4g}"
         lines.append(line)
-    uncertified = sum(not p.entry.certified for p in picks)
-    lines.append(f"optimum: {len(picks) - uncertified} certified (planted or proven)"
-                 + (f", {uncertified} UNCERTIFIED (best found, not proven)" if uncertified else ""))
+    not_proven = sum(not p.entry.certified for p in picks)
+    lines.append(f"optimum: {len(picks) - not_proven} planted or proven"
+                 + (f", {not_proven} not proven (the best state found is no proof)" if not_proven else ""))
     lines += [f"note: {x}" for x in notes]
     lines.append(f"check on any machine: `instgen library check-suite DIR` or `sha256sum -c {SUMS}`")
     return "\n".join(lines) + "\n"

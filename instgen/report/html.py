@@ -5,7 +5,7 @@ and ``log.jsonl`` written by ``instgen breed``) gives a report of the run's
 settings, the winners and their certificates, comparison with the random
 baseline, fitness by generation, TTS and residual energy against sweeps and
 anneal profiles of the best winners; a **library folder** (``index.sqlite``)
-gives its entries and hardness against size.  The cautions (uncertified
+gives its entries and hardness against size.  The cautions (not proven
 optima, bounds instead of values, which solvers the hardness was measured on,
 poor fits) come first, in a box of their own.
 
@@ -193,10 +193,10 @@ def figure(png: bytes, alt: str, caption: str) -> str:
 def status_cell(cert: dict | None) -> str:
     if not cert:
         return '<td class="warn">no optimum known</td>'
-    status = cert.get("status", "unverified")
+    status = cert.get("status", "not proven")
     if status in ("planted", "proven"):
         return f'<td class="ok">{esc(status)} <span class="unit">({esc(cert.get("method", ""))})</span></td>'
-    return (f'<td class="warn">NOT proven: best found <span class="unit">({esc(cert.get("method", ""))})'
+    return (f'<td class="warn">not proven: best found <span class="unit">({esc(cert.get("method", ""))})'
             "</span></td>")
 
 
@@ -233,6 +233,11 @@ window.addEventListener("load", function () {
     p.textContent = "This plot could not be shown: " + imgs[i].alt; imgs[i].after(p);
   }
   document.body.setAttribute("data-images-shown", shown + "/" + imgs.length);
+  var tables = document.getElementsByTagName("table"), widest = 0;
+  for (var k = 0; k < tables.length; k++) { widest = Math.max(widest, tables[k].scrollWidth); }
+  var main = document.querySelector("main"), css = getComputedStyle(main);
+  var column = main.clientWidth - parseFloat(css.paddingLeft) - parseFloat(css.paddingRight);
+  document.body.setAttribute("data-widest-table", widest + "/" + Math.floor(column));
 });
 """
 

@@ -34,7 +34,7 @@ def library_cautions(entries) -> list[str]:
     out = []
     unproven = [e for e in entries if not e.certified]
     if unproven:
-        out.append(f"{len(unproven)} of {len(entries)} entries have NO proven optimum (best found only, or none); "
+        out.append(f"{len(unproven)} of {len(entries)} entries have an optimum that is not proven (best found only, or none); "
                    "figures for them are measured against an energy that may not be the ground state.")
     bounds = sum(1 for e in entries for s in latest_scores(e).values() if s.kind != "value")
     if bounds:
@@ -71,27 +71,31 @@ def library_page(folder: Path) -> str:
         atomic_write(folder / PLOTS_DIR / "hardness-vs-size.png", png)
         sections.append("<h2>Hardness against size</h2>" + figure(
             png, "library hardness against size",
-            "Latest measurement of each entry per solver. Filled markers: certified optimum; open markers: "
-            "optimum not certified; triangles: bounds; bars: confidence intervals."))
+            "Latest measurement of each entry per solver. Filled markers: planted or proven optimum; open markers: "
+            "optimum not proven; triangles: bounds; bars: confidence intervals."))
+    # Two tables, so that each fits a 1280-pixel page: what each entry is, then what was measured on it.
     head = ["id", "graph", "spins", "couplers", "alphabet", "ground-state energy", "how it is known", "tags",
-            "added"] + [score_head(m, s, [latest_scores(e).get((m, s)) and latest_scores(e)[m, s].to_dict()
-                                          for e in entries]) for m, s in pairs]
+            "added"]
     rows = []
     for e in entries:
         c = e.certificate
-        latest = latest_scores(e)
         rows.append([text_cell(e.id), text_cell(e.graph), num_cell(e.n), num_cell(e.m), text_cell(e.couplings or "–"),
                      num_cell(None if c is None else c.energy, 10),
                      status_cell(None if c is None else {"status": c.status, "method": c.method}),
-                     text_cell(", ".join(e.tags)), text_cell(e.added[:16].replace("T", " "))]
-                    + [score_cell(latest[p].to_dict() if p in latest else None) for p in pairs])
-    sections.append("<h2>Entries</h2>" + table(head, rows, "entries") + BOUND_NOTE)
+                     text_cell(", ".join(e.tags)), text_cell(e.added[:10])])
+    sections.append("<h2>Entries</h2>" + table(head, rows, "entries"))
+    if pairs:
+        head = ["id"] + [score_head(m, s, [latest_scores(e).get((m, s)) and latest_scores(e)[m, s].to_dict()
+                                           for e in entries]) for m, s in pairs]
+        rows = [[text_cell(e.id)] + [score_cell(latest_scores(e)[p].to_dict() if p in latest_scores(e) else None)
+                                     for p in pairs] for e in entries]
+        sections.append("<h2>Hardness of each entry</h2>" + table(head, rows, "hardness") + BOUND_NOTE)
     graphs = sorted({e.graph for e in entries})
     sizes = sorted({e.n for e in entries})
     certified = sum(e.certified for e in entries)
     span = "" if not sizes else f", {sizes[0]} spins" if len(sizes) == 1 else f", {sizes[0]} to {sizes[-1]} spins"
     lead = (f"{len(entries)} entries on {esc(', '.join(graphs) or 'no graph')}{span}; {certified} with a "
-            f"certified optimum. Folder: {esc(folder.resolve())}.")
+            f"planted or proven optimum.")
     name = folder.resolve().name
     title = "Benchmark library" + (f" “{name}”" if name not in ("library", "") else "")
     return page(title, lead, library_cautions(entries), sections, footer_text(folder))

@@ -244,7 +244,7 @@ def profile_figure(profile):
         ea.axvline(fit.s_break, color=PALETTE["vermillion"], lw=1.2,
                    label=f"break s = {fit.s_break:.3f} ± {fit.se:.3f}" + (" (POOR FIT)" if fit.poor else ""))
         ref_label = {"proven": "ground state (proven)", "planted": "ground state (planted)"}.get(
-            profile.reference["status"], "lowest known energy (NOT proven)")
+            profile.reference["status"], "lowest known energy (not proven)")
         ea.axhline(profile.reference["energy"], color=PALETTE["black"], lw=1, ls="-.", label=ref_label)
         ea.set_ylabel("energy (coupling units)")
         ea.set_title("Energy along the anneal")
@@ -258,7 +258,7 @@ def profile_figure(profile):
                        transform=ra.get_xaxis_transform(), clip_on=False, label="every replica at the reference")
         if np.any(pos):  # a log axis needs something above zero to show
             plain_log(ra)
-        ra.set_ylabel("residual energy per spin (energy units)")
+        ra.set_ylabel("residual energy per spin (coupling units)")
         ra.set_title("Energy above the reference, per spin")
         ra.legend(frameon=False, loc="upper right")
         ha.plot(s[1:], profile.hamming_median[1:], color=PALETTE["orange"], marker="o", ms=3.5, lw=1.6)
@@ -283,8 +283,8 @@ def library_figure(points: list[dict]):
     """Hardness against size for a library: one panel per metric, colour by solver.
 
     Each point is a dict with ``metric``, ``solver``, ``n``, ``value``, ``ci``,
-    ``kind``, ``units`` and ``certified``.  Filled markers: certified optimum;
-    open: uncertified; triangles: bounds.
+    ``kind``, ``units`` and ``certified``.  Filled markers: planted or proven optimum;
+    open: not proven; triangles: bounds.
     """
     metrics = sorted({p["metric"] for p in points}, key=lambda m: -sum(p["metric"] == m for p in points))[:4]
     solvers = sorted({p["solver"] for p in points})
@@ -314,7 +314,7 @@ def library_figure(points: list[dict]):
                            facecolor=c if (p["certified"] and mk == "o") else "white")
             for s in solvers:
                 ax.scatter([], [], color=colour[s], label=s)
-            ax.scatter([], [], facecolor="white", edgecolor="grey", label="optimum not certified")
+            ax.scatter([], [], facecolor="white", edgecolor="grey", label="optimum not proven")
             ax.scatter([], [], marker="^", facecolor="white", edgecolor="grey", label="bound, not a value")
             ns = sorted({p["n"] for p in mine})
             if ns and ns[-1] > 4 * ns[0]:

@@ -329,8 +329,8 @@ def _reference_text(ref) -> str:
     if ref.status == "planted":
         return "planted ground state (known by construction)"
     if ref.source.startswith("certificate"):
-        return "best known energy from the certificate, NOT proven to be the ground state"
-    return "lowest energy seen in this profile, NOT a proven ground state (residual energies may be understated)"
+        return "best known energy from the certificate, not proven to be the ground state"
+    return "lowest energy seen in this profile, not a proven ground state (residual energies may be understated)"
 
 
 def anneal_profile(instance: Instance, points: int = 20, reads: int = 48, sweeps: int = 1000, seed=0, *,

@@ -118,7 +118,7 @@ def print_summary(summary: dict, stream=None) -> None:
         _table(w, base["instances"], run["solvers"], [f"{'r' + str(k):>2}  {'(not kept)':<26}"
                                                       for k in range(1, len(base["instances"]) + 1)], widths)
         if any(e["certificate"]["method"] == "none" for e in base["instances"]):
-            w("note: the run's metric does not use the ground-state energy, so the baseline was not certified.\n")
+            w("note: the run's metric does not use the ground-state energy, so no optimum was sought for the baseline.\n")
         elif base["certified"] < base["count"]:
             w(f"note: {base['count'] - base['certified']} of {base['count']} baseline reference energies are NOT "
               "certified (lowest energy found, not a proof); a lower state would make those instances harder "

@@ -19,7 +19,7 @@ def test_make_then_info(tmp_path, capsys):
     d = json.loads(out)
     assert code == 0 and d["n"] == 128 and d["m"] == 352 and d["planted"] is False
     code, out, _ = run(["info", str(f)], capsys)
-    assert "not certified" in out
+    assert "optimum     unknown (run `instgen certify`" in out
 
 
 def test_graph_summary_and_list(capsys):

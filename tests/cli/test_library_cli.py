@@ -68,9 +68,9 @@ def test_add_list_show_export_suite_verify(tmp_path, files, library, capsys):
     code, out, _ = run(["library", "add", str(files[0]), *lib], capsys)
     assert code == 0 and "duplicate" in out and len(out.splitlines()) == 1
     code, out, _ = run(["library", "list", "--certified", "--graph", "chimera:4", *lib], capsys)
-    assert code == 0 and out.count("chimera:4") == 10 and "(proven)" in out and "UNCERTIFIED" not in out
+    assert code == 0 and out.count("chimera:4") == 10 and "(proven)" in out and "not proven" not in out
     code, out, _ = run(["library", "list", *lib], capsys)
-    assert "1 UNCERTIFIED" in out and "unknown (uncertified)" in out
+    assert "1 not proven" in out and "unknown (no certificate)" in out
     code, out, _ = run(["library", "list", "--metric", "tts", "--min", "95", "--json", *lib], capsys)
     rows = json.loads(out)
     assert sorted(r["scores"][0]["value"] for r in rows) == [100.0, 110.0, 120.0, 130.0, 140.0]
@@ -84,7 +84,7 @@ def test_add_list_show_export_suite_verify(tmp_path, files, library, capsys):
                         str(tmp_path / "small"), *lib], capsys)
     assert code == 0 and len(list((tmp_path / "small").glob("*.npz"))) == 4
     code, out, _ = run(["library", "suite", "--count", "12", "--out", str(tmp_path / "suite"), *lib], capsys)
-    assert code == 0 and "12 instances" in out and "12 certified" in out
+    assert code == 0 and "12 instances" in out and "12 planted or proven" in out
     code, out, _ = run(["library", "check-suite", str(tmp_path / "suite")], capsys)
     assert code == 0 and "checked 12 suite instances: OK" in out
     code, out, _ = run(["library", "verify", *lib], capsys)

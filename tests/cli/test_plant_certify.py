@@ -39,17 +39,17 @@ def test_certify_proves_a_free_instance_and_writes_it(tmp_path, capsys):
     assert code == 0 and d["status"] == "proven" and d["energy"] == pytest.approx(e_ref) and not d["written"]
     assert "certificate" not in load_instance(f).metadata
     code, out, _ = run(["certify", f, "--method", "tree", "--write"], capsys)
-    assert code == 0 and "certificate written" in out and "NOT proven" not in out
+    assert code == 0 and "certificate written" in out and "not proven" not in out
     assert load_instance(f).metadata["certificate"]["energy"] == pytest.approx(e_ref)
 
 
-def test_unverified_result_says_not_proven(tmp_path, capsys):
+def test_a_result_without_proof_says_not_proven(tmp_path, capsys):
     f = tmp_path / "u.json"
     run(["make", "chimera:2", "--seed", 1, "--out", f], capsys)
     code, out, _ = run(["certify", f, "--method", "anneal", "--time-limit", 1, "--seed", 1, "--write"], capsys)
-    assert code == 0 and "status         unverified" in out
-    assert any(line.startswith("NOT proven") for line in out.splitlines())
-    assert load_instance(f).metadata["certificate"]["details"]["warning"].startswith("NOT proven")
+    assert code == 0 and "status         not proven" in out
+    assert any(line.startswith("not proven") for line in out.splitlines())
+    assert load_instance(f).metadata["certificate"]["details"]["warning"].startswith("not proven")
 
 
 @pytest.mark.parametrize("argv,needle", [

@@ -36,7 +36,7 @@ def test_tts_output_says_what_was_measured(files, capsys):
     assert code == 0 and err == ""
     assert "TTS99" in out and "CI" in out and "sampler seeds" in out
     assert "geometric beta 0.1 .. 5" in out and "seed       1" in out
-    assert "NOT a proven optimum" in out  # nothing planted, nothing certified
+    assert "not a proven optimum" in out  # nothing planted, nothing certified
 
 
 def test_tts_is_pinned_at_its_optimum_by_default(files, capsys):
@@ -59,7 +59,7 @@ def test_tts_is_pinned_at_its_optimum_by_default(files, capsys):
 
 def test_planted_reference_is_not_flagged(files, capsys):
     code, out, _ = run(["score", files["planted"], "--metric", "success", "--sweeps", "200", "--reads", "16"], capsys)
-    assert code == 0 and "planted state; planted" in out and "NOT a proven optimum" not in out
+    assert code == 0 and "planted state; planted" in out and "not a proven optimum" not in out
 
 
 def test_json_and_side_by_side_solvers(files, capsys):

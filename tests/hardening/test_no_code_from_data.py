@@ -138,7 +138,7 @@ def test_a_baited_instance_file_is_only_data(tmp_path, capsys, bait):
         ["library", "verify", *lib],
         ["library", "export", "--all", "--format", "json,dimod,ising-mtx,qubo-mtx,edgelist,npz",
          "--out", tmp_path / "out", *lib],
-        ["library", "suite", "--count", "1", "--out", tmp_path / "suite", "--include-uncertified", *lib],
+        ["library", "suite", "--count", "1", "--out", tmp_path / "suite", "--include-not-proven", *lib],
         ["library", "check-suite", tmp_path / "suite"],
         ["report", tmp_path / "lib", "--out", tmp_path / "lib-report.html"],
     ]

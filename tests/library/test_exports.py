@@ -22,7 +22,7 @@ def inst():
     """Gaussian couplings and fields on pegasus:2, whose labels are not 0..n-1, with a best-found state."""
     base = make_instance("pegasus:2", "gaussian", "gaussian", seed=11)
     state = random_gauge(base.n, seed=1)
-    cert = Certificate(energy=base.energy(state), state=state, method="a random state", status="unverified")
+    cert = Certificate(energy=base.energy(state), state=state, method="a random state", status="not proven")
     return with_certificate(base, cert)
 
 
@@ -49,7 +49,7 @@ def test_dimod_reads_its_own_file(inst, states, tmp_path):
     np.testing.assert_allclose(bqm.energies(samples), inst.energies(states), atol=1e-9)
     ss = dimod.SampleSet.from_serializable(json.loads(ground.read_text()))
     assert ss.first.energy == pytest.approx(inst.metadata["certificate"]["energy"], abs=1e-9)
-    assert ss.info["status"] == "unverified"
+    assert ss.info["status"] == "not proven"
 
 
 def test_scipy_reads_the_coupling_matrix(inst, states, tmp_path):
@@ -115,7 +115,7 @@ def test_check_export_recomputes_the_optimum(inst, tmp_path, fmt):
     files = export_instance(inst, tmp_path / "x", fmt)
     r = check_export(files[0], fmt)
     cert_energy = inst.metadata["certificate"]["energy"]
-    assert r.agrees and r.status == "unverified"
+    assert r.agrees and r.status == "not proven"
     assert r.ising_energy == pytest.approx(cert_energy, abs=1e-9)
     if fmt == "qubo-mtx":  # E_qubo(x*) = E_ising(s*) - offset
         assert r.energy == pytest.approx(cert_energy - float(inst.J.sum() - inst.h.sum()), abs=1e-9)

@@ -98,18 +98,18 @@ def test_unbounded_scores_are_filed_and_survive_a_round_trip(lib, tmp_path):
     assert not again.new and again.changes == [] and len(lib.get(r.id).scores) == 2
 
 
-def test_uncertified_entries_are_marked(lib):
+def test_entries_without_proof_are_marked(lib):
     r1 = lib.add(make_instance("chimera:1", "gaussian", seed=3))
     inst = make_instance("chimera:1", "gaussian", seed=4)
     best = exact_certificate(inst)
-    best.status = "unverified"
+    best.status = "not proven"
     r2 = lib.add(with_certificate(inst, best))
-    assert not lib.get(r1.id).certified and "uncertified" in lib.get(r1.id).optimum_text
-    assert not lib.get(r2.id).certified and "UNCERTIFIED" in lib.get(r2.id).optimum_text
+    assert not lib.get(r1.id).certified and "no certificate" in lib.get(r1.id).optimum_text
+    assert not lib.get(r2.id).certified and "not proven" in lib.get(r2.id).optimum_text
     assert lib.list(certified=True) == []
     # a later proof upgrades the entry
     r3 = lib.add(with_certificate(inst, exact_certificate(inst)))
-    assert r3.changes == ["certificate upgraded from unverified to proven"] and lib.get(r2.id).certified
+    assert r3.changes == ["certificate upgraded from not proven to proven"] and lib.get(r2.id).certified
 
 
 def test_planted_state_counts_as_certificate(lib):

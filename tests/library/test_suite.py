@@ -28,7 +28,7 @@ def lib(tmp_path_factory):
                 scores = [Score("tts", float(10 ** rng.uniform(1, 5)), solver="sa").to_dict(),
                           Score("tts", float(10 ** rng.uniform(1, 5)), solver="pt").to_dict()]
                 library.add(inst.replace(metadata={**inst.metadata, "scores": scores}))
-        for seed in range(5):  # uncertified: never picked by default; two without measurements
+        for seed in range(5):  # no certificate: never picked by default; two without measurements
             inst = make_instance("chimera:2", "gaussian", seed=seed)
             scores = [Score("tts", 10.0 ** seed, solver="sa").to_dict()] if seed < 3 else []
             library.add(inst.replace(metadata={**inst.metadata, "scores": scores}))
@@ -60,7 +60,7 @@ def test_suite_of_12_is_stratified_and_checkable(lib, tmp_path):
     assert len(rows) == 12 and {"tts[sa]", "tts[pt]", "optimum", "hardness_quantile"} <= set(rows[0])
     assert all(r["optimum_status"] == "proven" for r in rows)
     summary = (out / "summary.txt").read_text()
-    assert "12 instances" in summary and "12 certified" in summary and "UNCERTIFIED" not in summary
+    assert "12 instances" in summary and "12 planted or proven" in summary and "not proven" not in summary
     assert verify_suite(out).ok
     # on another machine: the folder alone, moved elsewhere, with the library gone
     moved = shutil.copytree(out, tmp_path / "elsewhere" / "suite")
@@ -77,15 +77,15 @@ def test_sha256sum_accepts_the_checksum_file(lib, tmp_path):
     assert r.returncode == 0, r.stdout + r.stderr
 
 
-def test_the_pick_is_deterministic_and_marks_uncertified(lib, tmp_path):
+def test_the_pick_is_deterministic_and_marks_the_not_proven(lib, tmp_path):
     a = make_suite(lib, 6, tmp_path / "a", metric="tts")
     b = make_suite(lib, 6, tmp_path / "b", metric="tts")
     assert [p.entry.fingerprint for p in a.picks] == [p.entry.fingerprint for p in b.picks]
-    c = make_suite(lib, 33, tmp_path / "c", include_uncertified=True)
+    c = make_suite(lib, 33, tmp_path / "c", include_not_proven=True)
     summary = (tmp_path / "c" / "summary.txt").read_text()
-    assert "3 UNCERTIFIED" in summary and "2 matching entries have no tts measurement" in summary
+    assert "3 not proven" in summary and "2 matching entries have no tts measurement" in summary
     with open(tmp_path / "c" / "table.csv", newline="") as fh:
-        assert sum(r["optimum_status"] == "uncertified" for r in csv.DictReader(fh)) == 3
+        assert sum(r["optimum_status"] == "no certificate" for r in csv.DictReader(fh)) == 3
 
 
 def test_check_suite_catches_tampering_and_missing_files(lib, tmp_path):

@@ -53,7 +53,7 @@ def make_run(folder: Path, winners: int = 3, baseline: int = 2, generations: int
     rows = []
     for rank in range(1, winners + 1):
         inst = make_instance(GRAPH, "pm1", seed=100 + rank)
-        inst, cert = certified(inst, status="unverified" if rank == winners else "proven")
+        inst, cert = certified(inst, status="not proven" if rank == winners else "proven")
         scores = measure_many(inst, [metric], SOLVERS, sweeps=SWEEPS, reads=40, seed=rank)
         inst = inst.replace(metadata={**inst.metadata, "scores": [s.to_dict() for s in scores]})
         name = f"{rank:02d}-w{rank}.json"
@@ -100,15 +100,15 @@ def make_library(folder: Path) -> list[str]:
     ids = []
     with Library.open(folder, create=True) as lib:
         for k, (graph, status) in enumerate([("chimera:1", "proven"), ("chimera:1", "proven"),
-                                             ("chimera:2", "unverified"), ("chimera:2", "unverified"),
-                                             ("chimera:2", "unverified")]):
+                                             ("chimera:2", "not proven"), ("chimera:2", "not proven"),
+                                             ("chimera:2", "not proven")]):
             inst = make_instance(graph, "pm1", seed=900 + k)
             if status == "proven":
                 inst, _ = certified(inst)
             else:  # best of a long simulated anneal: not a proof
                 batch = get_sampler("sa").run(inst, Schedule(sweeps=500), reads=50, seed=k)
                 j = int(np.argmin(batch.energies))
-                cert = Certificate(float(batch.energies[j]), batch.states[j], "best of 50 anneals", "unverified")
+                cert = Certificate(float(batch.energies[j]), batch.states[j], "best of 50 anneals", "not proven")
                 inst = inst.replace(metadata={**inst.metadata, "certificate": cert.to_dict()})
             scores = measure_many(inst, ["tts"], SOLVERS, sweeps=SWEEPS, reads=30, seed=k)
             inst = inst.replace(metadata={**inst.metadata, "scores": [s.to_dict() for s in scores]})

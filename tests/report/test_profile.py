@@ -131,9 +131,9 @@ def test_profile_residual_is_measured_against_the_exact_ground_state():
 def test_profile_without_a_known_optimum_says_so():
     inst = make_instance("chimera:1", "pm1", seed=7)
     prof = anneal_profile(inst, points=6, reads=8, sweeps=60, seed=1)
-    assert prof.reference["status"] == "unverified"
+    assert prof.reference["status"] == "not proven"
     assert prof.reference["energy"] == prof.energies.min()
-    assert any("NOT a proven ground state" in c for c in prof.cautions)
+    assert any("not a proven ground state" in c for c in prof.cautions)
 
 
 def test_profile_same_seed_same_result():
