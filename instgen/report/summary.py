@@ -120,11 +120,11 @@ def print_summary(summary: dict, stream=None) -> None:
         if any(e["certificate"]["method"] == "none" for e in base["instances"]):
             w("note: the run's metric does not use the ground-state energy, so no optimum was sought for the baseline.\n")
         elif base["certified"] < base["count"]:
-            w(f"note: {base['count'] - base['certified']} of {base['count']} baseline reference energies are NOT "
-              "certified (lowest energy found, not a proof); a lower state would make those instances harder "
+            w(f"note: {base['count'] - base['certified']} of {base['count']} baseline reference energies are "
+              "not proven (lowest energy found, not a proof); a lower state would make those instances harder "
               "than shown.\n")
         else:
-            w("note: every baseline reference energy is certified.\n")
+            w("note: every baseline reference energy is planted or proven.\n")
     start = summary.get("start") or {}
     if start.get("instances"):
         w(f"\nunbred start ({start['count']} instances drawn as the search's first generation is drawn, same "
