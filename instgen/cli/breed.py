@@ -87,6 +87,10 @@ def run(args):
         if not quiet:
             print(f"after the search: {text} ...", file=sys.stderr, flush=True)
 
+    if not (quiet or args.resume):
+        from ..evolve.cost import work_plan
+
+        print(work_plan(cfg).text(), file=sys.stderr, flush=True)
     with show:
         summary = breed(cfg, out=cfg["run"]["out"], executor=executor, resume=args.resume, progress=show.update,
                         say=say)

@@ -16,6 +16,10 @@ def fitness_text(cfg: dict, v) -> str:
     return f"{v:.4g}"
 
 
+def _minutes(seconds: float) -> str:
+    return f"{seconds:.0f} s" if seconds < 90 else f"{seconds / 60:.0f} min"
+
+
 class Progress:
     """Call ``update(record)`` once per generation; use as a context manager."""
 
@@ -53,5 +57,8 @@ class Progress:
         if self._bar is not None:
             self._bar.update(self._task, completed=r["generation"], status=status)
         else:
+            left = self.total - r["generation"]
+            if left > 0 and r.get("elapsed"):
+                status += f" · about {_minutes(left * r['elapsed'] / r['generation'])} left"
             self.stream.write(f"generation {r['generation']}/{self.total}: {status}\n")
             self.stream.flush()
