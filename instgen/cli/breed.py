@@ -19,6 +19,15 @@ on fresh seeds, certify their ground states and write a run folder:
   instgen breed presets/demo.toml --out outputs/demo --resume      # continue a killed run
 
 Any preset value can be overridden with --set table.key=value (TOML syntax).
+
+What each candidate is measured against, [fitness] reference:
+  planted            the planted energy (a proof; planted presets)
+  certified          prove every candidate's optimum before measuring it (small graphs only)
+  best-found         the lowest energy any read reached (cheap, no proof)
+  confirm-certified  search against the best found, but prove a candidate's optimum before
+                     it is confirmed, so no winner rests on an excited state taken for the ground
+  auto               planted when there is one, else best found
+Samplers for [fitness] sampler and solvers: see `instgen score --help`.
 """
 
 

@@ -52,3 +52,12 @@ def test_every_sampler_says_what_it_is_in_the_help():
     for name in SAMPLERS.names():
         assert f"  {name:<14} {SUMMARIES[name]}" in score.DESCRIPTION
     assert "rotor" in SUMMARIES["rotor"] and "64 replicas" in SUMMARIES["packed-sa"]
+
+
+def test_every_reference_choice_is_explained_in_breed_help():
+    # "confirm-certified" does not explain itself: breed --help says what each [fitness] reference does.
+    from instgen.cli import breed
+    from instgen.preset import REFERENCES
+
+    for name in REFERENCES:
+        assert f"\n  {name:<18} " in breed.DESCRIPTION, name
